@@ -1,0 +1,226 @@
+"""Shortest-path trees and all-or-nothing loading, compiled with numba.
+
+This is the hot loop of every solver. One Dijkstra tree per origin zone (binary heap,
+lazy deletion), computed in parallel over origins; the demand of each origin is loaded
+onto its tree by a single backward sweep over the nodes in the order they were settled.
+
+The centroid rule: when ``Network.through_centroids`` is False, a path may start or end
+at a zone centroid but never pass through one, so links leaving a centroid are relaxed
+only from the origin of the tree.
+"""
+
+from __future__ import annotations
+
+import numba
+import numpy as np
+
+__all__ = ["ShortestPaths"]
+
+
+@numba.njit(cache=True)
+def dijkstra(origin, indptr, adj_link, adj_head, cost, blocked, dist, pred, order,
+             heap_key, heap_node):
+    """One shortest-path tree from node ``origin``.
+
+    Fills ``dist`` (inf where unreachable), ``pred`` (link index into each node, -1 at the
+    origin and at unreached nodes) and ``order`` (nodes in settling order); returns how
+    many nodes were settled. ``heap_key``/``heap_node`` are work arrays of size
+    ``n_links + 1``. ``blocked[u] != 0`` forbids passing through node ``u``.
+    """
+    n = dist.size
+    for i in range(n):
+        dist[i] = np.inf
+        pred[i] = -1
+    dist[origin] = 0.0
+    size = 0
+    heap_key[0] = 0.0
+    heap_node[0] = origin
+    size = 1
+    n_settled = 0
+    while size > 0:
+        d = heap_key[0]
+        u = heap_node[0]
+        # pop the root
+        size -= 1
+        if size > 0:
+            key = heap_key[size]
+            node = heap_node[size]
+            i = 0
+            while True:
+                child = 2 * i + 1
+                if child >= size:
+                    break
+                if child + 1 < size and heap_key[child + 1] < heap_key[child]:
+                    child += 1
+                if heap_key[child] < key:
+                    heap_key[i] = heap_key[child]
+                    heap_node[i] = heap_node[child]
+                    i = child
+                else:
+                    break
+            heap_key[i] = key
+            heap_node[i] = node
+        if d > dist[u]:
+            continue  # stale entry
+        order[n_settled] = u
+        n_settled += 1
+        if blocked[u] and u != origin:
+            continue
+        for k in range(indptr[u], indptr[u + 1]):
+            v = adj_head[k]
+            nd = d + cost[adj_link[k]]
+            if nd < dist[v]:
+                dist[v] = nd
+                pred[v] = adj_link[k]
+                # push
+                i = size
+                size += 1
+                while i > 0:
+                    parent = (i - 1) // 2
+                    if heap_key[parent] > nd:
+                        heap_key[i] = heap_key[parent]
+                        heap_node[i] = heap_node[parent]
+                        i = parent
+                    else:
+                        break
+                heap_key[i] = nd
+                heap_node[i] = v
+    return n_settled
+
+
+@numba.njit(cache=True, parallel=True)
+def _aon_all(origins, zone_nodes, demand, indptr, adj_link, adj_head, tail, cost, blocked,
+             n_chunks):
+    n_nodes = indptr.size - 1
+    n_links = tail.size
+    n_zones = zone_nodes.size
+    flows = np.zeros((n_chunks, n_links))
+    od_cost = np.full((n_zones, n_zones), np.nan)
+    for c in numba.prange(n_chunks):
+        dist = np.empty(n_nodes)
+        pred = np.empty(n_nodes, dtype=np.int64)
+        order = np.empty(n_nodes, dtype=np.int64)
+        acc = np.zeros(n_nodes)
+        heap_key = np.empty(n_links + 1)
+        heap_node = np.empty(n_links + 1, dtype=np.int64)
+        flow = flows[c]
+        for j in range(c, origins.size, n_chunks):
+            oz = origins[j]
+            settled = dijkstra(zone_nodes[oz], indptr, adj_link, adj_head, cost, blocked,
+                               dist, pred, order, heap_key, heap_node)
+            for dz in range(n_zones):
+                od_cost[oz, dz] = dist[zone_nodes[dz]]
+                acc[zone_nodes[dz]] += demand[oz, dz]
+            for k in range(settled - 1, 0, -1):
+                u = order[k]
+                a = acc[u]
+                if a != 0.0:
+                    link = pred[u]
+                    flow[link] += a
+                    acc[tail[link]] += a
+                    acc[u] = 0.0
+            for dz in range(n_zones):
+                acc[zone_nodes[dz]] = 0.0  # origin and unreachable destinations
+            od_cost[oz, oz] = 0.0
+    return flows, od_cost
+
+
+class ShortestPaths:
+    """Forward-star graph of a network, ready for repeated shortest-path passes.
+
+    Parameters
+    ----------
+    network : Network
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from congest.network import Network
+    >>> from congest.paths import ShortestPaths
+    >>> net = Network(node_ids=[1, 2, 3], tail=[0, 0, 2], head=[1, 2, 1],
+    ...               capacity=1.0, free_flow_time=[5.0, 1.0, 1.0],
+    ...               zone_ids=[1, 2], zone_nodes=[0, 1], demand=[[0, 3], [0, 0]])
+    >>> flow, od_cost = ShortestPaths(net).all_or_nothing(net.free_flow_time)
+    >>> flow.tolist(), float(od_cost[0, 1])
+    ([0.0, 3.0, 3.0], 2.0)
+    """
+
+    def __init__(self, network):
+        self.network = network
+        n = network.n_nodes
+        order = np.argsort(network.tail, kind="stable")
+        self.adj_link = np.ascontiguousarray(order, dtype=np.int64)
+        self.adj_head = np.ascontiguousarray(network.head[order], dtype=np.int64)
+        counts = np.bincount(network.tail, minlength=n)
+        self.indptr = np.zeros(n + 1, dtype=np.int64)
+        np.cumsum(counts, out=self.indptr[1:])
+        self.tail = np.ascontiguousarray(network.tail, dtype=np.int64)
+        self.head = np.ascontiguousarray(network.head, dtype=np.int64)
+        self.blocked = np.zeros(n, dtype=np.uint8)
+        if not network.through_centroids:
+            self.blocked[network.zone_nodes] = 1
+        self.zone_nodes = np.ascontiguousarray(network.zone_nodes, dtype=np.int64)
+        self.origins = np.flatnonzero(network.demand.sum(axis=1) > 0).astype(np.int64)
+
+    def all_or_nothing(self, cost, demand=None):
+        """Load ``demand`` (default: the network's) on shortest paths at ``cost``.
+
+        Parameters
+        ----------
+        cost : ndarray of shape (n_links,)
+            Non-negative link costs.
+        demand : ndarray of shape (n_zones, n_zones), optional
+
+        Returns
+        -------
+        flow : ndarray of shape (n_links,)
+        od_cost : ndarray of shape (n_zones, n_zones)
+            Shortest-path cost between zones; NaN rows for origins without demand,
+            inf where no path exists.
+        """
+        demand = self.network.demand if demand is None else np.asarray(demand, np.float64)
+        cost = np.ascontiguousarray(cost, dtype=np.float64)
+        n_chunks = max(1, min(numba.get_num_threads(), self.origins.size))
+        flows, od_cost = _aon_all(self.origins, self.zone_nodes, np.ascontiguousarray(demand),
+                                  self.indptr, self.adj_link, self.adj_head, self.tail, cost,
+                                  self.blocked, n_chunks)
+        return flows.sum(axis=0), od_cost
+
+    def tree(self, origin_node, cost):
+        """Shortest-path tree from node index ``origin_node``.
+
+        Returns
+        -------
+        dist : ndarray of shape (n_nodes,)
+        pred : ndarray of int, shape (n_nodes,)
+            Link index entering each node on the tree; -1 at the origin and unreached nodes.
+        """
+        n = self.network.n_nodes
+        m = self.network.n_links
+        dist = np.empty(n)
+        pred = np.empty(n, dtype=np.int64)
+        order = np.empty(n, dtype=np.int64)
+        dijkstra(int(origin_node), self.indptr, self.adj_link, self.adj_head,
+                 np.ascontiguousarray(cost, dtype=np.float64), self.blocked, dist, pred, order,
+                 np.empty(m + 1), np.empty(m + 1, dtype=np.int64))
+        return dist, pred
+
+    def path(self, origin_node, destination_node, cost):
+        """Link indices of a shortest path between two node indices ([] if none)."""
+        _, pred = self.tree(origin_node, cost)
+        links = []
+        node = int(destination_node)
+        if pred[node] < 0 and node != origin_node:
+            return links
+        while node != origin_node:
+            link = int(pred[node])
+            links.append(link)
+            node = int(self.tail[link])
+        return links[::-1]
+
+    def unreachable_pairs(self):
+        """Zone-index pairs with demand but no path, as an array of shape (k, 2)."""
+        _, od_cost = self.all_or_nothing(self.network.free_flow_time + 1.0)
+        demand = self.network.demand
+        bad = (demand > 0) & ~np.isfinite(np.nan_to_num(od_cost, nan=np.inf))
+        return np.argwhere(bad)
