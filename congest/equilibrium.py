@@ -289,7 +289,7 @@ def solve(network, *, objective="ue", method="auto", tol=1e-4, max_iter=None,
     ...                 free_flow_time=[1.0, 0.0], alpha=[0.0, 1.0], beta=[0.0, 1.0],
     ...                 cost_kind=2, zone_ids=[1, 2], zone_nodes=[0, 1],
     ...                 demand=[[0, 1], [0, 0]])
-    >>> round(solve(pigou, objective="so", tol=1e-10).flow[1], 6)
+    >>> round(float(solve(pigou, objective="so", tol=1e-10).flow[1]), 6)
     0.5
     """
     if not (tol > 0):
