@@ -1,5 +1,33 @@
-"""Reading and writing networks and results. Everything here validates at the edge."""
+"""Reading and writing networks and results. Everything here validates at the edge.
 
-from .tables import read_tables
+Readers
+    :func:`read_network` (detects the layout), :func:`read_gmns` (GMNS folder with
+    congest's trip table), :func:`read_tables` (plain link and OD CSVs),
+    :func:`from_networkx`.
+Writers (all atomic)
+    :func:`write_gmns`, :func:`write_link_results`, :func:`to_networkx`, and the
+    :func:`~congest.io.atomic.atomic_write` helper for any other output.
+"""
 
-__all__ = ["read_tables"]
+from .atomic import atomic_folder, atomic_write
+from .gmns import read_gmns, write_gmns
+from .graph import from_networkx, to_networkx
+from .layout import Layout, detect_layout, read_network
+from .results import link_results, write_link_results
+from .tables import parse_zones, read_tables
+
+__all__ = [
+    "read_network",
+    "read_gmns",
+    "read_tables",
+    "from_networkx",
+    "to_networkx",
+    "write_gmns",
+    "write_link_results",
+    "link_results",
+    "atomic_write",
+    "atomic_folder",
+    "detect_layout",
+    "Layout",
+    "parse_zones",
+]
