@@ -39,6 +39,7 @@ METHODS = {
     "fw": "congest._frank_wolfe:solve_fw",
     "cfw": "congest._frank_wolfe:solve_cfw",
     "bfw": "congest._frank_wolfe:solve_bfw",
+    "gp": "congest._gradient_projection:solve_gp",
 }
 
 #: Method used by ``method="auto"``.

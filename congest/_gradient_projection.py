@@ -1,0 +1,689 @@
+"""Path-based gradient projection: precise UE and SO, with route flows and warm starts.
+
+Every OD pair keeps the set of routes it uses, with their flows. One iteration:
+
+1. link flows are summed from the route flows (so they are exact, not drifted) and the
+   link costs of the objective are evaluated (generalized cost for UE, marginal cost
+   ``t(w) + w t'(w) + constant`` at ``w = flow + preload`` for SO);
+2. shortest-path trees from every origin, in parallel; they give the relative gap of
+   the current flows and, for each OD pair, a route that joins its set if it is new
+   (column generation);
+3. each OD pair moves flow from its dearer routes to its cheapest one with a Newton
+   step (Jayakrishnan et al. 1994): ``delta_p = min(f_p, (c_p - c_b) / D_p)`` with
+   ``D_p`` the sum of the cost derivatives on the links where route ``p`` and the
+   cheapest route ``b`` differ. Link costs are updated after every move (Gauss-Seidel).
+   Routes whose flow reaches zero are dropped;
+4. inner passes repeat step 3 over the fixed route sets (no shortest paths) while they
+   still remove a good share of the excess cost, since they are much cheaper than
+   step 2 (Chen, Jayakrishnan & Tsai 2002 call this the inner loop).
+
+Memory is proportional to the number of links plus the total length of the used routes
+(a pool of link indices, compacted when half of it belongs to dropped routes), plus one
+predecessor array per origin. Every loop over links, OD pairs or routes is compiled with
+numba; the shortest-path trees run in parallel over origins.
+
+A warm start takes the route sets of an earlier result of the same network and scales
+their flows to the new demand of each OD pair; after a toll, capacity or small demand
+change most routes stay, so few iterations are needed.
+
+References
+----------
+.. [1] Jayakrishnan, R., Tsai, W.K., Prashker, J.N. & Rajadhyaksha, S. (1994). A faster
+   path-based algorithm for traffic assignment. Transportation Research Record 1443,
+   75-83.
+.. [2] Chen, A., Jayakrishnan, R. & Tsai, W.K. (2002). Faster Frank-Wolfe traffic
+   assignment with new flow update scheme. Journal of Transportation Engineering 128(1),
+   31-39.
+.. [3] Bertsekas, D.P. & Gafni, E.M. (1982). Projection methods for variational
+   inequalities with application to the traffic assignment problem. Mathematical
+   Programming Study 17, 139-159.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+
+import numba
+import numpy as np
+
+from .costs import time_derivatives_scalar
+from .equilibrium import relative_gap
+from .exceptions import SolverError
+from .paths import dijkstra
+
+__all__ = ["solve_gp", "RouteState"]
+
+# rows of the packed per-link parameter array
+_T0, _ALPHA, _BETA, _CAP, _CONST, _PRELOAD = range(6)
+# slots of the counter array
+_N_PATHS, _POOL_USED, _DEAD_LINKS, _STAMP = range(4)
+
+
+@dataclass(frozen=True, eq=False)
+class RouteState:
+    """Route sets and flows of a gradient-projection result (``Equilibrium.state``).
+
+    Arrays in CSR form: the routes of OD pair ``i`` are ``od_ptr[i]:od_ptr[i + 1]``; the
+    links of route ``r`` are ``path_links[path_ptr[r]:path_ptr[r + 1]]`` in travel order.
+    Use :func:`congest.routes.route_flows` rather than these arrays directly.
+
+    Attributes
+    ----------
+    origin, destination : ndarray of int, shape (n_od,)
+        Zone indices of the OD pairs with demand.
+    demand : ndarray of shape (n_od,)
+    od_ptr : ndarray of int, shape (n_od + 1,)
+    path_ptr : ndarray of int, shape (n_routes + 1,)
+    path_links : ndarray of int32, shape (path_ptr[-1],)
+    path_flow : ndarray of shape (n_routes,)
+    n_links : int
+    """
+
+    origin: np.ndarray
+    destination: np.ndarray
+    demand: np.ndarray
+    od_ptr: np.ndarray
+    path_ptr: np.ndarray
+    path_links: np.ndarray
+    path_flow: np.ndarray
+    n_links: int
+
+
+# --------------------------------------------------------------------------- kernels
+@numba.njit(cache=True, inline="always")
+def _update_link(l, x, kind, par, so, cost, deriv):
+    w = x[l] + par[_PRELOAD, l]
+    t, d, d2 = time_derivatives_scalar(kind[l], par[_T0, l], par[_ALPHA, l], par[_BETA, l],
+                                       par[_CAP, l], w)
+    if so:
+        cost[l] = t + w * d + par[_CONST, l]
+        deriv[l] = 2.0 * d + w * d2 if w > 0.0 else 2.0 * d
+    else:
+        cost[l] = t + par[_CONST, l]
+        deriv[l] = d
+
+
+@numba.njit(cache=True)
+def _refresh_costs(x, kind, par, so, cost, deriv):
+    for l in range(x.size):
+        _update_link(l, x, kind, par, so, cost, deriv)
+
+
+@numba.njit(cache=True, parallel=True)
+def _trees(origin_nodes, zone_nodes, indptr, adj_link, adj_head, cost, blocked, pred, zdist,
+           n_chunks):
+    """Shortest-path trees from every origin: predecessor links and zone distances."""
+    n_nodes = indptr.size - 1
+    n_links = adj_link.size
+    for ch in numba.prange(n_chunks):
+        dist = np.empty(n_nodes)
+        p = np.empty(n_nodes, dtype=np.int64)
+        order = np.empty(n_nodes, dtype=np.int64)
+        heap_key = np.empty(n_links + 1)
+        heap_node = np.empty(n_links + 1, dtype=np.int64)
+        for j in range(ch, origin_nodes.size, n_chunks):
+            dijkstra(origin_nodes[j], indptr, adj_link, adj_head, cost, blocked, dist, p,
+                     order, heap_key, heap_node)
+            for i in range(n_nodes):
+                pred[j, i] = p[i]
+            for z in range(zone_nodes.size):
+                zdist[j, z] = dist[zone_nodes[z]]
+
+
+@numba.njit(cache=True, parallel=True)
+def _needs_route(od_row, od_d, zdist, cost, od_first, p_start, p_len, p_next, pool, rel_tol,
+                 need):
+    """Flag the OD pairs whose tree route is cheaper than all their routes."""
+    for od in numba.prange(od_first.size):
+        p = od_first[od]
+        best = np.inf
+        while p >= 0:
+            c = 0.0
+            for i in range(p_start[p], p_start[p] + p_len[p]):
+                c += cost[pool[i]]
+            if c < best:
+                best = c
+            p = p_next[p]
+        if best == np.inf:
+            need[od] = True
+        else:
+            need[od] = zdist[od_row[od], od_d[od]] < best - rel_tol * abs(best)
+
+
+@numba.njit(cache=True)
+def _sum_flows(od_demand, od_first, p_start, p_len, p_flow, p_next, pool, x):
+    """Link flows from route flows; first restores each OD's route flows to its demand."""
+    x[:] = 0.0
+    for od in range(od_first.size):
+        p = od_first[od]
+        if p < 0:
+            continue
+        total = 0.0
+        big = p
+        while p >= 0:
+            total += p_flow[p]
+            if p_flow[p] > p_flow[big]:
+                big = p
+            p = p_next[p]
+        p_flow[big] += od_demand[od] - total
+        p = od_first[od]
+        while p >= 0:
+            f = p_flow[p]
+            if f != 0.0:
+                for i in range(p_start[p], p_start[p] + p_len[p]):
+                    x[pool[i]] += f
+            p = p_next[p]
+
+
+@numba.njit(cache=True)
+def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_flow,
+                 p_next, pool, counters, mark, mark2):
+    """Newton moves of one OD pair's flow to its cheapest route; returns its excess cost.
+
+    The excess ``sum_p f_p (c_p - c_min)`` is measured before the moves.
+    """
+    first = od_first[od]
+    if first < 0 or p_next[first] < 0:
+        return 0.0
+    best = -1
+    best_cost = np.inf
+    p = first
+    while p >= 0:
+        c = 0.0
+        for i in range(p_start[p], p_start[p] + p_len[p]):
+            c += cost[pool[i]]
+        if c < best_cost:
+            best_cost = c
+            best = p
+        p = p_next[p]
+    counters[_STAMP] += 1
+    sb = counters[_STAMP]
+    b0 = p_start[best]
+    b1 = b0 + p_len[best]
+    for i in range(b0, b1):
+        mark[pool[i]] = sb
+    excess = 0.0
+    prev = -1
+    p = first
+    while p >= 0:
+        nxt = p_next[p]
+        if p == best:
+            prev = p
+            p = nxt
+            continue
+        counters[_STAMP] += 1
+        sp = counters[_STAMP]
+        cp = 0.0
+        d_own = 0.0
+        d_common = 0.0
+        for i in range(p_start[p], p_start[p] + p_len[p]):
+            l = pool[i]
+            cp += cost[l]
+            mark2[l] = sp
+            if mark[l] == sb:
+                d_common += deriv[l]
+            else:
+                d_own += deriv[l]
+        cb = 0.0
+        db = 0.0
+        for i in range(b0, b1):
+            l = pool[i]
+            cb += cost[l]
+            db += deriv[l]
+        f = p_flow[p]
+        diff = cp - cb
+        if diff > 0.0 and f > 0.0:
+            excess += f * diff
+            dsum = d_own + db - d_common
+            delta = f
+            if dsum > 0.0 and diff < f * dsum:
+                delta = diff / dsum
+            if delta > 0.0:
+                for i in range(p_start[p], p_start[p] + p_len[p]):
+                    l = pool[i]
+                    if mark[l] != sb:
+                        v = x[l] - delta
+                        x[l] = v if v > 0.0 else 0.0
+                        _update_link(l, x, kind, par, so, cost, deriv)
+                for i in range(b0, b1):
+                    l = pool[i]
+                    if mark2[l] != sp:
+                        x[l] += delta
+                        _update_link(l, x, kind, par, so, cost, deriv)
+                p_flow[best] += delta
+                f = f - delta if delta < f else 0.0
+                p_flow[p] = f
+        if f <= 0.0:
+            # drop the route
+            if prev < 0:
+                od_first[od] = nxt
+            else:
+                p_next[prev] = nxt
+            counters[_DEAD_LINKS] += p_len[p]
+            p_len[p] = 0
+        else:
+            prev = p
+        p = nxt
+    return excess
+
+
+@numba.njit(cache=True)
+def _column_pass(start, need, od_row, od_dnode, od_demand, tail, pred, x, kind, par, so,
+                 cost, deriv, od_first, p_start, p_len, p_flow, p_hash, p_next, pool, counters,
+                 mark, mark2, work):
+    """Add each OD pair's tree route if new, then equilibrate the pair.
+
+    Stops early (returning the OD index to resume from) when the route arrays could
+    overflow; returns ``(next_od, excess)``.
+    """
+    n_od = od_first.size
+    max_len = work.size
+    excess = 0.0
+    for od in range(start, n_od):
+        if counters[_N_PATHS] + 1 > p_flow.size or counters[_POOL_USED] + max_len > pool.size:
+            return od, excess
+        if not need[od]:
+            first = od_first[od]
+            if first >= 0 and p_next[first] >= 0:
+                excess += _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start,
+                                       p_len, p_flow, p_next, pool, counters, mark, mark2)
+            continue
+        row = od_row[od]
+        node = od_dnode[od]
+        n = 0
+        h = 1469598103934665603
+        while True:
+            l = pred[row, node]
+            if l < 0:
+                break
+            work[n] = l
+            n += 1
+            h = (h ^ l) * 1099511628211
+            node = tail[l]
+        found = False
+        p = od_first[od]
+        while p >= 0 and not found:
+            if p_hash[p] == h and p_len[p] == n:
+                s = p_start[p]
+                same = True
+                for i in range(n):
+                    if pool[s + i] != work[n - 1 - i]:
+                        same = False
+                        break
+                found = same
+            p = p_next[p]
+        if not found:
+            q = counters[_N_PATHS]
+            counters[_N_PATHS] += 1
+            s = counters[_POOL_USED]
+            counters[_POOL_USED] += n
+            for i in range(n):
+                pool[s + i] = work[n - 1 - i]
+            p_start[q] = s
+            p_len[q] = n
+            p_hash[q] = h
+            if od_first[od] < 0:
+                f = od_demand[od]
+                p_flow[q] = f
+                for i in range(s, s + n):
+                    x[pool[i]] += f
+                    _update_link(pool[i], x, kind, par, so, cost, deriv)
+            else:
+                p_flow[q] = 0.0
+            p_next[q] = od_first[od]
+            od_first[od] = q
+        excess += _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
+                               p_flow, p_next, pool, counters, mark, mark2)
+    return n_od, excess
+
+
+@numba.njit(cache=True)
+def _inner_pass(x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_flow, p_next,
+                pool, counters, mark, mark2):
+    excess = 0.0
+    for od in range(od_first.size):
+        first = od_first[od]
+        if first < 0 or p_next[first] < 0:
+            continue  # a single route has nothing to move (checked here: calls are dear)
+        excess += _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
+                               p_flow, p_next, pool, counters, mark, mark2)
+    return excess
+
+
+@numba.njit(cache=True)
+def _compact(od_first, p_start, p_len, p_flow, p_hash, p_next, pool, n_start, n_len,
+             n_flow, n_hash, n_next, n_pool, n_od_first, counters):
+    """Copy the live routes into fresh arrays (``n_*``), in OD order."""
+    q = 0
+    s = 0
+    for od in range(od_first.size):
+        p = od_first[od]
+        last = -1
+        n_od_first[od] = -1
+        while p >= 0:
+            n_start[q] = s
+            n_len[q] = p_len[p]
+            n_flow[q] = p_flow[p]
+            n_hash[q] = p_hash[p]
+            n_next[q] = -1
+            for i in range(p_len[p]):
+                n_pool[s + i] = pool[p_start[p] + i]
+            s += p_len[p]
+            if last < 0:
+                n_od_first[od] = q
+            else:
+                n_next[last] = q
+            last = q
+            q += 1
+            p = p_next[p]
+    counters[_N_PATHS] = q
+    counters[_POOL_USED] = s
+    counters[_DEAD_LINKS] = 0
+
+
+@numba.njit(cache=True)
+def _import(old_od_ptr, old_path_ptr, old_links, old_flow, old_index, scale, od_first,
+            p_start, p_len, p_flow, p_hash, p_next, pool, counters):
+    """Seed the route pool from an earlier state; ``old_index[od]`` = old OD or -1."""
+    q = 0
+    s = 0
+    for od in range(od_first.size):
+        od_first[od] = -1
+        k = old_index[od]
+        if k < 0:
+            continue
+        last = -1
+        for r in range(old_od_ptr[k], old_od_ptr[k + 1]):
+            f = old_flow[r] * scale[od]
+            if f <= 0.0:
+                continue
+            a, b = old_path_ptr[r], old_path_ptr[r + 1]
+            h = 1469598103934665603
+            for i in range(b - 1, a - 1, -1):
+                h = (h ^ old_links[i]) * 1099511628211
+            for i in range(a, b):
+                pool[s + i - a] = old_links[i]
+            p_start[q] = s
+            p_len[q] = b - a
+            p_flow[q] = f
+            p_hash[q] = h
+            p_next[q] = -1
+            s += b - a
+            if last < 0:
+                od_first[od] = q
+            else:
+                p_next[last] = q
+            last = q
+            q += 1
+    counters[_N_PATHS] = q
+    counters[_POOL_USED] = s
+
+
+@numba.njit(cache=True)
+def _export_counts(od_first, p_len, p_next, counts, lengths):
+    n = 0
+    for od in range(od_first.size):
+        p = od_first[od]
+        c = 0
+        while p >= 0:
+            lengths[n] = p_len[p]
+            n += 1
+            c += 1
+            p = p_next[p]
+        counts[od] = c
+    return n
+
+
+@numba.njit(cache=True)
+def _export_fill(od_first, p_start, p_len, p_flow, p_next, pool, path_ptr, path_links,
+                 path_flow):
+    r = 0
+    for od in range(od_first.size):
+        p = od_first[od]
+        while p >= 0:
+            s = path_ptr[r]
+            for i in range(p_len[p]):
+                path_links[s + i] = pool[p_start[p] + i]
+            path_flow[r] = p_flow[p]
+            r += 1
+            p = p_next[p]
+
+
+# ---------------------------------------------------------------------- the route pool
+class _Pool:
+    """Growable route storage: per-route start/length/flow/hash/next plus a link pool."""
+
+    def __init__(self, n_od, n_paths, n_pool):
+        self.od_first = np.full(n_od, -1, dtype=np.int64)
+        self.start = np.zeros(n_paths, dtype=np.int64)
+        self.length = np.zeros(n_paths, dtype=np.int64)
+        self.flow = np.zeros(n_paths)
+        self.hash = np.zeros(n_paths, dtype=np.int64)
+        self.next = np.full(n_paths, -1, dtype=np.int64)
+        self.links = np.zeros(n_pool, dtype=np.int32)
+        self.counters = np.zeros(4, dtype=np.int64)
+
+    def reserve(self, n_paths, n_pool):
+        """Make room for ``n_paths`` more routes and ``n_pool`` more link entries."""
+        used_p = int(self.counters[_N_PATHS])
+        used_l = int(self.counters[_POOL_USED])
+        dead = int(self.counters[_DEAD_LINKS])
+        need_p = used_p + n_paths
+        need_l = used_l + n_pool
+        if need_p <= self.flow.size and need_l <= self.links.size:
+            return
+        if dead > used_l // 2:
+            self.compact(extra_paths=n_paths, extra_links=n_pool)
+            return
+        if need_p > self.flow.size:
+            size = max(need_p, 2 * self.flow.size)
+            for name in ("start", "length", "flow", "hash"):
+                old = getattr(self, name)
+                new = np.zeros(size, dtype=old.dtype)
+                new[:used_p] = old[:used_p]
+                setattr(self, name, new)
+            new = np.full(size, -1, dtype=np.int64)
+            new[:used_p] = self.next[:used_p]
+            self.next = new
+        if need_l > self.links.size:
+            new = np.zeros(max(need_l, 2 * self.links.size), dtype=np.int32)
+            new[:used_l] = self.links[:used_l]
+            self.links = new
+
+    def compact(self, extra_paths=0, extra_links=0):
+        live_l = int(self.counters[_POOL_USED] - self.counters[_DEAD_LINKS])
+        n_paths = max(self.flow.size // 2, int(self.counters[_N_PATHS]) + extra_paths, 16)
+        n_pool = max(int(1.5 * live_l) + extra_links, 16)
+        fresh = _Pool(self.od_first.size, n_paths, n_pool)
+        _compact(self.od_first, self.start, self.length, self.flow, self.hash, self.next,
+                 self.links, fresh.start, fresh.length, fresh.flow, fresh.hash, fresh.next,
+                 fresh.links, fresh.od_first, self.counters)
+        fresh.counters[:] = self.counters
+        self.__dict__.update(fresh.__dict__)
+
+    def args(self):
+        return (self.od_first, self.start, self.length, self.flow, self.hash, self.next,
+                self.links, self.counters)
+
+    def export(self, origin, destination, demand, n_links) -> RouteState:
+        n_od = self.od_first.size
+        counts = np.zeros(n_od, dtype=np.int64)
+        lengths = np.zeros(int(self.counters[_N_PATHS]), dtype=np.int64)
+        n = _export_counts(self.od_first, self.length, self.next, counts, lengths)
+        od_ptr = np.zeros(n_od + 1, dtype=np.int64)
+        np.cumsum(counts, out=od_ptr[1:])
+        path_ptr = np.zeros(n + 1, dtype=np.int64)
+        np.cumsum(lengths[:n], out=path_ptr[1:])
+        path_links = np.empty(int(path_ptr[-1]), dtype=np.int32)
+        path_flow = np.empty(n)
+        _export_fill(self.od_first, self.start, self.length, self.flow, self.next,
+                     self.links, path_ptr, path_links, path_flow)
+        for arr in (origin, destination, demand, od_ptr, path_ptr, path_links, path_flow):
+            arr.setflags(write=False)
+        return RouteState(origin, destination, demand, od_ptr, path_ptr, path_links,
+                          path_flow, int(n_links))
+
+
+def _seed_from(state, network, od_o, od_d, od_q, pool):
+    """Load the route sets of ``state`` scaled to the new demand into ``pool``."""
+    if not isinstance(state, RouteState):
+        raise SolverError(
+            "a gradient-projection warm start needs an earlier result of method 'gp' "
+            "(Frank-Wolfe results carry no routes)")
+    nz = network.n_zones
+    index = np.full((nz, nz), -1, dtype=np.int64)
+    index[state.origin, state.destination] = np.arange(state.origin.size)
+    old = index[od_o, od_d]
+    old_q = np.where(old >= 0, state.demand[np.maximum(old, 0)], 0.0)
+    old = np.where(old_q > 0, old, -1)
+    scale = np.where(old >= 0, od_q / np.where(old_q > 0, old_q, 1.0), 0.0)
+    n_paths = int(state.path_flow.size)
+    n_pool = int(state.path_links.size)
+    pool.reserve(n_paths, n_pool)
+    _import(state.od_ptr, state.path_ptr, state.path_links, state.path_flow, old, scale,
+            *pool.args()[:-1], pool.counters)
+
+
+def _check_same_network(old, net):
+    same = (old.n_links == net.n_links and old.n_nodes == net.n_nodes
+            and np.array_equal(old.tail, net.tail) and np.array_equal(old.head, net.head)
+            and np.array_equal(old.zone_nodes, net.zone_nodes)
+            and old.through_centroids == net.through_centroids)
+    if not same:
+        raise SolverError("warm start must come from the same network (same links, zones "
+                          "and centroid rule); only costs and demand may differ")
+
+
+# ------------------------------------------------------------------------------ solver
+def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
+             inner_max=40, inner_ratio=0.1):
+    """Path-based gradient projection (Jayakrishnan et al. 1994) for UE and SO.
+
+    Parameters
+    ----------
+    problem : congest.equilibrium.Problem
+    tol, max_iter, time_limit, warm_start, callback
+        As in :func:`congest.solve`; ``max_iter`` (default 500) counts outer iterations,
+        each with one all-origins shortest-path pass.
+    inner_max : int, default 40
+        Most inner passes (route moves without new shortest paths) per iteration.
+    inner_ratio : float, default 0.1
+        Inner passes stop once a pass finds less excess cost than ``inner_ratio`` times
+        the excess cost at the start of the iteration.
+
+    Returns
+    -------
+    dict
+        ``flow, iterations, converged, message, history, state``; ``state`` is a
+        :class:`RouteState` for :mod:`congest.routes` and later warm starts.
+    """
+    net = problem.network
+    model = problem.model
+    sp = problem.paths
+    so = problem.objective == "so"
+    if max_iter is None:
+        max_iter = 500
+    if max_iter < 1:
+        raise SolverError(f"max_iter must be at least 1, got {max_iter!r}")
+    if inner_max < 0 or not (inner_ratio >= 0):
+        raise SolverError("inner_max and inner_ratio must be non-negative")
+    start_time = time.perf_counter()
+    n_links = net.n_links
+    od_o, od_d, od_q = net.od_pairs()
+    od_o = od_o.astype(np.int64)
+    od_d = od_d.astype(np.int64)
+    od_q = np.ascontiguousarray(od_q, dtype=np.float64)
+    n_od = od_q.size
+    origins, od_row = np.unique(od_o, return_inverse=True)
+    od_row = od_row.astype(np.int64)
+    origin_nodes = sp.zone_nodes[origins]
+    od_dnode = sp.zone_nodes[od_d]
+    kind = model.kind
+    par = np.ascontiguousarray(np.vstack([model.t0, model.alpha, model.beta, model.capacity,
+                                          model.constant, model.preload]))
+    x = np.zeros(n_links)
+    cost = np.empty(n_links)
+    deriv = np.empty(n_links)
+    history = {"iteration": [], "relative_gap": [], "objective": [], "wall_time": []}
+
+    pool = _Pool(n_od, max(2 * n_od, 16), max(16 * n_od, 4 * net.n_nodes, 16))
+    if warm_start is not None:
+        _check_same_network(warm_start.network, net)
+        _seed_from(warm_start.state, net, od_o, od_d, od_q, pool)
+
+    if n_od == 0:
+        return {"flow": x, "iterations": 0, "converged": True,
+                "message": "no demand: every link flow is zero", "history": history,
+                "state": pool.export(od_o, od_d, od_q, n_links)}
+
+    n_nodes = net.n_nodes
+    pred = np.empty((origins.size, n_nodes), dtype=np.int32)
+    zdist = np.empty((origins.size, net.n_zones))
+    mark = np.zeros(n_links, dtype=np.int64)
+    mark2 = np.zeros(n_links, dtype=np.int64)
+    work = np.empty(n_nodes, dtype=np.int32)
+    need = np.zeros(n_od, dtype=np.bool_)
+    # a tree route joins only if cheaper than the OD's routes by more than rounding
+    route_tol = min(1e-13, 0.1 * tol)
+    n_chunks = max(1, min(numba.get_num_threads(), origins.size))
+    converged = False
+    message = ""
+    k = 0
+    while True:
+        _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
+                   pool.links, x)
+        _refresh_costs(x, kind, par, so, cost, deriv)
+        _trees(origin_nodes, sp.zone_nodes, sp.indptr, sp.adj_link, sp.adj_head, cost,
+               sp.blocked, pred, zdist, n_chunks)
+        od_dist = zdist[od_row, od_d]
+        if k == 0 and not np.isfinite(od_dist).all():
+            problem.all_or_nothing(cost)  # raises NetworkError naming the pairs
+        sptt = float(od_dist @ od_q)
+        tstt = float(x @ cost)
+        gap = relative_gap(tstt, sptt) if tstt > 0 else np.inf
+        elapsed = time.perf_counter() - start_time
+        if k > 0 or np.isfinite(gap):
+            history["iteration"].append(k)
+            history["relative_gap"].append(gap)
+            history["objective"].append(problem.objective_value(x))
+            history["wall_time"].append(elapsed)
+        if gap <= tol:
+            converged = True
+            break
+        if k > 0 and callback is not None and callback(k, x.copy(), gap):
+            message = f"stopped by callback at relative gap {gap:.3g}"
+            break
+        if time_limit is not None and elapsed > time_limit:
+            message = f"time limit {time_limit:g} s reached at relative gap {gap:.3g}"
+            break
+        if k >= max_iter:
+            message = f"iteration cap {max_iter} reached at relative gap {gap:.3g}"
+            break
+        k += 1
+        excess_start = max(tstt - sptt, 0.0)
+        _needs_route(od_row, od_d, zdist, cost, pool.od_first, pool.start, pool.length,
+                     pool.next, pool.links, route_tol, need)
+        od = 0
+        while od < n_od:
+            pool.reserve(n_od - od + 1, (n_od - od + 1) * 8 + n_nodes)
+            od, _ = _column_pass(od, need, od_row, od_dnode, od_q, sp.tail, pred, x, kind, par,
+                                 so, cost, deriv, *pool.args(), mark, mark2, work)
+        for _ in range(inner_max):
+            excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
+                                 pool.length, pool.flow, pool.next, pool.links,
+                                 pool.counters, mark, mark2)
+            if excess <= inner_ratio * excess_start:
+                break
+            if time_limit is not None and time.perf_counter() - start_time > time_limit:
+                break
+        if pool.counters[_DEAD_LINKS] > max(pool.counters[_POOL_USED] // 2, 1024):
+            pool.compact()
+    return {
+        "flow": x.copy(),
+        "iterations": k,
+        "converged": converged,
+        "message": message,
+        "history": history,
+        "state": pool.export(od_o, od_d, od_q, n_links),
+    }
