@@ -1,0 +1,364 @@
+"""Charts of curves and tables: convergence, sweeps, learning, scenario comparisons.
+
+All charts share a plain look: a bold left-aligned title, a grey subtitle with the key
+figure, light horizontal grid lines, no top/right frame, units in every axis label.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ._maps import _INK, _MUTED, _fmt
+
+__all__ = ["convergence_chart", "sweep_chart", "learning_chart", "scenario_chart",
+           "PALETTE"]
+
+#: Line and bar colours, in order: dark enough to read on white, distinct in grey print
+#: when combined with the line styles below.
+PALETTE = ("#23456b", "#c2571a", "#3a8a5c", "#8a3f8f", "#b08d1c", "#4f8fbf", "#7a4a2a",
+           "#9c2f4d")
+_STYLES = ("-", "--", "-.", ":")
+
+
+def _new_figure(figsize, n_cols=1, n_rows=1, *, sharex=False):
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=figsize)
+    axes = fig.subplots(n_rows, n_cols, sharex=sharex, squeeze=False).ravel()
+    for ax in axes:
+        ax.spines[["top", "right"]].set_visible(False)
+        for side in ("left", "bottom"):
+            ax.spines[side].set_color(_MUTED)
+        ax.tick_params(colors=_INK, labelsize=8.5)
+        ax.grid(True, axis="y", color="#e3e6ea", lw=0.8)
+        ax.set_axisbelow(True)
+    return fig, list(axes)
+
+
+def _titles(fig, title, subtitle, *, top=0.84):
+    fig.text(0.02, 0.975, title, fontsize=13, fontweight="bold", color=_INK, va="top",
+             gid="congest-title")
+    if subtitle:
+        fig.text(0.02, 0.915, subtitle, fontsize=9, color=_MUTED, va="top",
+                 gid="congest-subtitle")
+    fig.subplots_adjust(top=top)
+
+
+def _label(ax, xlabel, ylabel):
+    ax.set_xlabel(xlabel, fontsize=9, color=_INK)
+    ax.set_ylabel(ylabel, fontsize=9, color=_INK)
+
+
+# ------------------------------------------------------------------ convergence
+def _histories(results):
+    """(label, history dict) pairs from Equilibria, a sequence or a mapping."""
+    if hasattr(results, "history"):
+        results = [results]
+    if isinstance(results, dict):
+        items = list(results.items())
+    else:
+        items = []
+        for res in results:
+            label = getattr(res, "method", "result")
+            if getattr(res, "objective", None) is not None:
+                label = f"{label} ({res.objective.upper()})"
+            items.append((label, res))
+    out = []
+    for label, res in items:
+        hist = res.history if hasattr(res, "history") else res
+        out.append((str(label), {k: np.asarray(v, dtype=np.float64)
+                                 for k, v in dict(hist).items()}))
+    return out
+
+
+def convergence_chart(results, *, tol=None, title="Convergence", figsize=(11.0, 4.6)):
+    """Relative gap against iteration and against time, one line per method.
+
+    Parameters
+    ----------
+    results : Equilibrium, sequence of Equilibrium, or mapping of str to Equilibrium
+        Each needs a ``history`` with ``relative_gap`` and ``iteration`` and/or
+        ``wall_time`` (seconds); a mapping may also hold such history dicts directly.
+        Sequence entries are labelled "method (objective)".
+    tol : float, optional
+        Gap target drawn as a horizontal line.
+    title : str, default "Convergence"
+    figsize : (float, float), default (11, 4.6)
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Two axes (iteration, seconds), log-scaled gap, one ``Line2D`` per method in each,
+        labelled by method.
+    """
+    items = _histories(results)
+    if not items:
+        raise ValueError("convergence_chart needs at least one result")
+    fig, (ax_it, ax_t) = _new_figure(figsize, n_cols=2)
+    floor = None
+    for k, (label, hist) in enumerate(items):
+        gap = hist.get("relative_gap")
+        if gap is None or gap.size == 0:
+            continue
+        shown = np.where(gap > 0, gap, np.nan)
+        if np.isfinite(shown).any():
+            lo = float(np.nanmin(shown))
+            floor = lo if floor is None else min(floor, lo)
+        style = {"color": PALETTE[k % len(PALETTE)], "ls": _STYLES[(k // 2) % len(_STYLES)],
+                 "lw": 1.6, "label": label}
+        iters = hist.get("iteration", np.arange(1, gap.size + 1, dtype=np.float64))
+        ax_it.plot(iters, shown, **style)
+        if "wall_time" in hist:
+            ax_t.plot(hist["wall_time"], shown, **style)
+    for ax in (ax_it, ax_t):
+        ax.set_yscale("log")
+        if tol is not None:
+            ax.axhline(tol, color=_MUTED, lw=0.9, ls=(0, (4, 3)))
+            ax.text(1.0, tol, f" target {tol:.0e}", transform=ax.get_yaxis_transform(),
+                    fontsize=7.5, color=_MUTED, va="bottom", ha="right")
+        ax.grid(True, axis="x", color="#f0f2f4", lw=0.6)
+    _label(ax_it, "Iteration", "Relative gap (log scale)")
+    _label(ax_t, "Time, seconds", "Relative gap (log scale)")
+    ax_it.legend(fontsize=8, frameon=False, loc="upper right")
+    best = f"best final gap {floor:.1e}" if floor is not None else "no gap history"
+    _titles(fig, title, f"{len(items)} run(s)  ·  {best}")
+    fig.subplots_adjust(left=0.07, right=0.98, bottom=0.12, wspace=0.25)
+    return fig
+
+
+# ----------------------------------------------------------------------- sweeps
+def sweep_chart(table, *, currency="money", title="Demand sweep", figsize=(9.0, 7.0)):
+    """Price of anarchy and first-best toll revenue against the demand multiplier.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame
+        A sweep table (:attr:`congest.sweep.SweepResult.table`) with columns
+        ``demand_scale``, ``price_of_anarchy`` and, if present, ``first_best_revenue``;
+        when ``advice_share`` or ``toll_scale`` vary, the revenue panel draws one line per
+        setting and the price-of-anarchy panel uses the first setting (it does not depend
+        on them).
+    currency : str, default "money"
+    title : str, default "Demand sweep"
+    figsize : (float, float), default (9, 7)
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Two axes sharing the demand axis: price of anarchy (with the line at 1) and
+        revenue in ``currency`` per period.
+    """
+    if "demand_scale" not in table or "price_of_anarchy" not in table:
+        raise ValueError("sweep table needs demand_scale and price_of_anarchy columns")
+    if table.empty:
+        raise ValueError("sweep table is empty")
+    keys = [c for c in ("toll_scale", "advice_share")
+            if c in table and table[c].nunique() > 1]
+    groups = list(table.groupby(keys, sort=True)) if keys else [((), table)]
+    fig, (ax_p, ax_r) = _new_figure(figsize, n_rows=2, sharex=True)
+    first = groups[0][1].sort_values("demand_scale")
+    x, poa = first["demand_scale"].to_numpy(float), first["price_of_anarchy"].to_numpy(float)
+    ax_p.plot(x, poa, color=PALETTE[0], lw=1.8, marker="o", ms=3.5)
+    ax_p.axhline(1.0, color=_MUTED, lw=0.9, ls=(0, (4, 3)))
+    ax_p.text(1.0, 1.0, "1 = selfish routing costs nothing ", fontsize=7.5, color=_MUTED,
+              va="bottom", ha="right", transform=ax_p.get_yaxis_transform())
+    ok = np.isfinite(poa)
+    sub = ""
+    if ok.any():
+        i = int(np.nanargmax(np.where(ok, poa, -np.inf)))
+        ax_p.plot([x[i]], [poa[i]], marker="o", ms=7, mfc="none", mec=PALETTE[1], mew=1.5)
+        ax_p.annotate(f"peak {poa[i]:.4f}\nat demand x{_fmt(x[i])}", (x[i], poa[i]),
+                      xytext=(8, -4), textcoords="offset points", fontsize=8, color=_INK,
+                      va="top")
+        sub = f"peak price of anarchy {poa[i]:.4f} at demand x{_fmt(x[i])}"
+        top = float(np.nanmax(poa))
+        ax_p.set_ylim(min(0.995, float(np.nanmin(poa))), 1.0 + (top - 1.0) * 1.25 + 1e-3)
+    _label(ax_p, "", "Price of anarchy\n(UE / SO system cost)")
+    if "first_best_revenue" in table:
+        for k, (key, grp) in enumerate(groups):
+            grp = grp.sort_values("demand_scale")
+            key = key if isinstance(key, tuple) else (key,)
+            label = ", ".join(f"{n.replace('_', ' ')} {_fmt(v)}"
+                              for n, v in zip(keys, key, strict=True))
+            col = "tolled_revenue" if "toll_scale" in keys and "tolled_revenue" in grp \
+                else "first_best_revenue"
+            ax_r.plot(grp["demand_scale"], grp[col], color=PALETTE[k % len(PALETTE)],
+                      lw=1.8, marker="o", ms=3.5, label=label or "marginal-cost tolls")
+        ax_r.legend(fontsize=8, frameon=False, loc="upper left")
+        from matplotlib.ticker import FuncFormatter
+
+        ax_r.yaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:,.0f}"))
+    else:
+        ax_r.text(0.5, 0.5, "no revenue column in the sweep table", ha="center",
+                  transform=ax_r.transAxes, color=_MUTED)
+    _label(ax_r, "Demand multiplier (1 = base demand)",
+           f"Toll revenue,\n{currency} per period")
+    _titles(fig, title, f"{len(table)} points  ·  {sub}", top=0.87)
+    fig.subplots_adjust(left=0.13, right=0.97, bottom=0.09, hspace=0.12)
+    return fig
+
+
+# ---------------------------------------------------------------------- learning
+def _spread(ax, frame, x, column, color, label):
+    """Median line and 10-90% band over replications (a plain line for one run)."""
+    if "replication" in frame and frame["replication"].nunique() > 1:
+        grouped = frame.groupby(x)[column]
+        mid = grouped.median()
+        lo, hi = grouped.quantile(0.1), grouped.quantile(0.9)
+        ax.fill_between(mid.index, lo.to_numpy(), hi.to_numpy(), color=color, alpha=0.18,
+                        lw=0)
+        ax.plot(mid.index, mid.to_numpy(), color=color, lw=1.6,
+                label=f"{label} (median, 10-90% band)")
+        return frame["replication"].nunique()
+    ax.plot(frame[x], frame[column], color=color, lw=1.4, label=label)
+    return 1
+
+
+def learning_chart(days, *, ue_total=None, route_shares=None, title="Day-to-day learning",
+                   figsize=(10.0, 8.5)):
+    """Total travel time, relative gap and route shares day by day.
+
+    Parameters
+    ----------
+    days : pandas.DataFrame
+        One row per day (and replication): ``day``, ``total_travel_time``
+        (vehicle-minutes) and ``relative_gap``; optional ``replication`` for the spread
+        across replications (median and 10-90% band).
+    ue_total : float, optional
+        Total travel time at user equilibrium, drawn as a reference line.
+    route_shares : pandas.DataFrame, optional
+        Columns ``day``, ``route`` (label) and ``share`` (0..1), optional
+        ``replication``; one line per route.
+    title : str, default "Day-to-day learning"
+    figsize : (float, float), default (10, 8.5)
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Two or three stacked axes sharing the day axis.
+    """
+    for col in ("day", "total_travel_time", "relative_gap"):
+        if col not in days:
+            raise ValueError(f"learning table needs a {col!r} column")
+    n_rows = 3 if route_shares is not None and len(route_shares) else 2
+    fig, axes = _new_figure(figsize, n_rows=n_rows, sharex=True)
+    frame = days.copy()
+    frame["vehicle_hours"] = frame["total_travel_time"] / 60.0
+    n_rep = _spread(axes[0], frame, "day", "vehicle_hours", PALETTE[0], "simulated")
+    if ue_total is not None:
+        axes[0].axhline(ue_total / 60.0, color=PALETTE[1], lw=1.0, ls=(0, (4, 3)),
+                        label="user equilibrium")
+    axes[0].legend(fontsize=8, frameon=False, loc="upper right")
+    _label(axes[0], "", "Total travel time,\nvehicle-hours")
+    frame["gap_shown"] = frame["relative_gap"].where(frame["relative_gap"] > 0)
+    _spread(axes[1], frame, "day", "gap_shown", PALETTE[2], "relative gap")
+    axes[1].set_yscale("log")
+    _label(axes[1], "", "Relative gap of the\nday's flows (log)")
+    if n_rows == 3:
+        shares = route_shares.copy()
+        for k, (route, grp) in enumerate(shares.groupby("route", sort=True)):
+            _spread(axes[2], grp, "day", "share", PALETTE[k % len(PALETTE)], str(route))
+        axes[2].set_ylim(-0.02, 1.02)
+        axes[2].legend(fontsize=7.5, frameon=False, loc="upper right",
+                       ncol=min(3, shares["route"].nunique()))
+        _label(axes[2], "", "Route share")
+    _label(axes[-1], "Day", axes[-1].get_ylabel())
+    last = frame[frame["day"] == frame["day"].max()]
+    sub = (f"{int(frame['day'].max())} days  ·  {n_rep} replication(s)  ·  final relative "
+           f"gap {float(np.nanmedian(last['relative_gap'])):.1e}"
+           + (" (median)" if n_rep > 1 else ""))
+    _titles(fig, title, sub, top=0.88)
+    fig.subplots_adjust(left=0.12, right=0.97, bottom=0.07, hspace=0.12)
+    return fig
+
+
+# --------------------------------------------------------------------- scenarios
+#: Comparison columns drawn by :func:`scenario_chart` by default, with their labels.
+SCENARIO_METRICS = {
+    "vehicle_hours": "Vehicle-hours",
+    "mean_trip_time_min": "Mean trip time",
+    "vehicle_distance": "Vehicle-distance",
+    "max_volume_capacity": "Max volume/capacity",
+    "links_over_capacity": "Links over capacity",
+}
+
+
+def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
+                   title="Scenarios compared", figsize=(11.0, 5.6)):
+    """Grouped bar chart of a scenario comparison table, indexed to a baseline.
+
+    Each group is one measure; each bar one scenario, its height the measure as a
+    percentage of the baseline scenario (so measures in different units share one
+    axis); the actual value is written on the bar.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame
+        One row per scenario, e.g. ``congest.scenarios.compare(...).table``; the
+        scenario names are the index or the ``scenario_column``.
+    metrics : mapping of column to label, or sequence of column names, optional
+        Default: those of :data:`SCENARIO_METRICS` present in the table.
+    baseline : str, optional
+        Scenario = 100 (default: the one named like user equilibrium, else the first).
+    scenario_column : str, optional
+        Column holding scenario names (default: ``"scenario"`` if present, else the
+        index).
+    title : str, default "Scenarios compared"
+    figsize : (float, float), default (11, 5.6)
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        One BarContainer per scenario, labelled with the scenario's name.
+    """
+    frame = table.copy()
+    if scenario_column is None and "scenario" in frame:
+        scenario_column = "scenario"
+    if scenario_column is not None:
+        frame = frame.set_index(scenario_column)
+    frame.index = [str(i) for i in frame.index]
+    if metrics is None:
+        metrics = {c: lbl for c, lbl in SCENARIO_METRICS.items() if c in frame}
+    elif not isinstance(metrics, dict):
+        metrics = {c: SCENARIO_METRICS.get(c, c.replace("_", " ")) for c in metrics}
+    missing = [c for c in metrics if c not in frame]
+    if missing:
+        raise ValueError(f"comparison table has no column(s) {missing}")
+    if not metrics:
+        raise ValueError("no measure to draw: pass metrics=")
+    names = list(frame.index)
+    if baseline is None:
+        baseline = next((n for n in names if n.lower() in ("ue", "user equilibrium")),
+                        names[0])
+    if baseline not in names:
+        raise ValueError(f"baseline {baseline!r} is not a scenario; choose from {names}")
+    values = frame[list(metrics)].apply(lambda c: c.astype(float))
+    base = values.loc[baseline]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        index = 100.0 * values / base.where(base != 0)
+    fig, (ax,) = _new_figure(figsize)
+    n_s, n_m = len(names), len(metrics)
+    width = 0.8 / n_s
+    centers = np.arange(n_m)
+    tall = float(np.nanmax(index.to_numpy())) if np.isfinite(index.to_numpy()).any() else 100
+    for k, name in enumerate(names):
+        pos = centers - 0.4 + width * (k + 0.5)
+        heights = index.loc[name].to_numpy(float)
+        bars = ax.bar(pos, np.nan_to_num(heights), width * 0.92, label=name,
+                      color=PALETTE[k % len(PALETTE)], zorder=2)
+        if n_s * n_m <= 48:
+            for rect, val, h in zip(bars, values.loc[name].to_numpy(float), heights, strict=True):
+                ax.text(rect.get_x() + rect.get_width() / 2, (0 if not math.isfinite(h)
+                        else h) + tall * 0.01, _fmt(val) if math.isfinite(val) else "n/a",
+                        ha="center", va="bottom", fontsize=6.5, color=_INK, rotation=90)
+    ax.axhline(100.0, color=_MUTED, lw=0.9, ls=(0, (4, 3)), zorder=3)
+    ax.set_xticks(centers, list(metrics.values()), fontsize=8.5)
+    ax.set_ylim(0, tall * 1.22)
+    _label(ax, "", f"Percent of {baseline} (= 100)")
+    ax.legend(fontsize=8, frameon=False, loc="upper left", bbox_to_anchor=(1.0, 1.0))
+    _titles(fig, title, f"{n_s} scenarios  ·  bars indexed to {baseline}; values written "
+            "on the bars in the table's units")
+    fig.subplots_adjust(left=0.07, right=0.80, bottom=0.1)
+    return fig
