@@ -33,6 +33,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ..exceptions import InputError
 from ..pricing import TollPlan
 from ._table import Table
 
@@ -101,8 +102,9 @@ def read_toll_plan(path, network, *, name=None) -> TollPlan:
         table.require("link_id")  # names the column the plan is missing
     unknown = [c for c in table.columns if c not in TOLL_PLAN_COLUMNS]
     if unknown:
-        table.fail(f"unknown column; a toll plan has columns {', '.join(TOLL_PLAN_COLUMNS)}",
-                   column=unknown[0], value=unknown[0])
+        raise InputError(f"unknown column; a toll plan has columns "
+                         f"{', '.join(TOLL_PLAN_COLUMNS)}", path=table.path, row=1,
+                         column=unknown[0])
     charge = table.number("charge", minimum=0, describe="charge")
     link_blank = table.blank("link_id")
     attr_blank = table.blank("attribute")
