@@ -1,0 +1,393 @@
+"""Maps and charts, checked for what they draw (Agg backend, no window).
+
+The checks compare the drawn artists with the data they were given: one segment per
+link at its nodes' coordinates, widths ordered like volumes, colours equal to the colour
+map applied to volume/capacity, colour-bar ranges, titles with the key figures.
+"""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+import warnings
+
+import matplotlib
+
+matplotlib.use("Agg")
+
+import numpy as np
+import pandas as pd
+import pytest
+from matplotlib.colors import Normalize
+
+import congest
+from congest.exceptions import NetworkError
+from congest.network import Network
+from congest.plotting import (
+    MAP_LAYERS,
+    change_colormap,
+    convergence_chart,
+    difference_map,
+    flow_map,
+    learning_chart,
+    load_colormap,
+    save_figure,
+    scenario_chart,
+    select_link_map,
+    sweep_chart,
+    toll_colormap,
+    toll_map,
+)
+
+
+def grid(n_rows=4, n_cols=5, *, spacing=1.0, crs="", one_way=True, seed=0, **extra):
+    """A two-way street grid with zones at the corners (and one one-way street)."""
+    rng = np.random.default_rng(seed)
+    xs, ys = np.meshgrid(np.arange(n_cols) * spacing, np.arange(n_rows) * spacing)
+    x, y = xs.ravel(), ys.ravel()
+    ids = np.arange(n_rows * n_cols).reshape(n_rows, n_cols)
+    tail, head = [], []
+    for r in range(n_rows):
+        for c in range(n_cols):
+            for rr, cc in ((r, c + 1), (r + 1, c)):
+                if rr < n_rows and cc < n_cols:
+                    tail += [ids[r, c], ids[rr, cc]]
+                    head += [ids[rr, cc], ids[r, c]]
+    if one_way:  # drop one direction of the first street
+        tail, head = tail[1:], head[1:]
+    m = len(tail)
+    zones = [ids[0, 0], ids[0, -1], ids[-1, 0], ids[-1, -1]]
+    demand = rng.uniform(50, 150, (4, 4))
+    return Network(node_ids=np.arange(1, x.size + 1), tail=tail, head=head,
+                   capacity=rng.uniform(200, 400, m), free_flow_time=rng.uniform(1, 2, m),
+                   zone_ids=[1, 2, 3, 4], zone_nodes=zones, demand=demand, x=x, y=y,
+                   crs=crs, length=np.full(m, spacing), length_unit="km", **extra)
+
+
+def layer(fig, name):
+    found = [c for ax in fig.axes for c in ax.collections if c.get_gid() == MAP_LAYERS[name]]
+    assert len(found) == 1, f"expected one {name!r} layer, found {len(found)}"
+    return found[0]
+
+
+def text(fig, gid):
+    return next(t.get_text() for t in fig.texts if t.get_gid() == gid)
+
+
+@pytest.fixture(scope="module")
+def net():
+    return grid()
+
+
+@pytest.fixture(scope="module")
+def ue(net):
+    return congest.solve(net, tol=1e-6, max_iter=2000)
+
+
+# ----------------------------------------------------------------- flow map
+def test_flow_map_one_segment_per_link_at_its_nodes(net):
+    flow = np.linspace(10, 500, net.n_links)
+    fig = flow_map(net, flow)
+    seg = np.asarray(layer(fig, "links").get_segments())
+    assert seg.shape == (net.n_links, 2, 2)
+    # each segment runs parallel to its link, moved sideways by less than 30% of it
+    start = np.column_stack([net.x[net.tail], net.y[net.tail]])
+    end = np.column_stack([net.x[net.head], net.y[net.head]])
+    np.testing.assert_allclose(seg[:, 1] - seg[:, 0], end - start, atol=1e-12)
+    shift = np.linalg.norm(seg[:, 0] - start, axis=1)
+    assert np.all(shift <= 0.3 * np.linalg.norm(end - start, axis=1) + 1e-12)
+    # the one-way street sits on its centre line; two-way ones do not
+    n = net.n_nodes
+    two_way = np.isin(net.head * n + net.tail, net.tail * n + net.head)
+    assert not two_way.all()
+    np.testing.assert_allclose(shift[~two_way], 0.0, atol=1e-12)
+    assert np.all(shift[two_way] > 0)
+
+
+def test_two_directions_side_by_side_without_overlap(net):
+    rng = np.random.default_rng(3)
+    flow = rng.uniform(0, 600, net.n_links)
+    fig = flow_map(net, flow)
+    lc = layer(fig, "links")
+    seg = np.asarray(lc.get_segments())
+    widths = np.asarray(lc.get_linewidths())
+    ax = lc.axes
+    fig.canvas.draw()
+    to_pt = ax.transData.transform
+    pair = {(int(t), int(h)): i for i, (t, h) in enumerate(zip(net.tail, net.head,
+                                                                strict=True))}
+    checked = 0
+    for i, (t, h) in enumerate(zip(net.tail, net.head, strict=True)):
+        j = pair.get((int(h), int(t)))
+        if j is None or j < i:
+            continue
+        # distance in display pixels between the two parallel centre lines
+        a, b = to_pt(seg[i][0]), to_pt(seg[j][1])
+        gap_px = np.linalg.norm(a - b)
+        need_px = (widths[i] + widths[j]) / 2 * fig.dpi / 72.0
+        assert gap_px >= need_px - 1e-6
+        checked += 1
+    assert checked > 10
+
+
+def test_flow_map_widths_ordered_like_volumes(net):
+    flow = np.random.default_rng(1).permutation(np.linspace(0, 900, net.n_links))
+    widths = np.asarray(layer(flow_map(net, flow), "links").get_linewidths())
+    order = np.argsort(flow)
+    assert np.all(np.diff(widths[order]) > 0)
+    # affine in volume: a hairline plus a part proportional to volume
+    slope = (widths - widths.min()) / np.where(flow > 0, flow, 1)
+    np.testing.assert_allclose(slope[flow > 0], slope[flow > 0][0], rtol=1e-9)
+
+
+def test_flow_map_colours_are_the_colour_map_of_volume_capacity(net):
+    flow = np.linspace(0, 1.3, net.n_links) * net.period_capacity
+    fig = flow_map(net, flow)
+    colors = layer(fig, "links").get_colors()
+    expected = load_colormap()(Normalize(0.0, 1.5)(flow / net.period_capacity))
+    np.testing.assert_allclose(colors, expected, atol=1e-12)
+    # colour bar: 0 to the top of the scale (1.3 rounded up to a quarter)
+    cbar_ax = [ax for ax in fig.axes if ax.get_ylabel() == "Volume / capacity"]
+    assert len(cbar_ax) == 1
+    np.testing.assert_allclose(cbar_ax[0].get_ylim(), (0.0, 1.5))
+
+
+def test_flow_map_colour_bar_arrow_when_links_exceed_the_scale(net):
+    flow = np.full(net.n_links, 3.0) * net.period_capacity
+    fig = flow_map(net, flow)
+    cbar_ax = next(ax for ax in fig.axes if ax.get_ylabel() == "Volume / capacity")
+    np.testing.assert_allclose(cbar_ax.get_ylim(), (0.0, 2.0))
+    colors = layer(fig, "links").get_colors()
+    np.testing.assert_allclose(colors, load_colormap()(np.ones(net.n_links)), atol=1e-12)
+
+
+def test_flow_map_title_has_the_scenario_and_its_key_figures(net, ue):
+    fig = flow_map(net, ue)
+    assert text(fig, "congest-title") == f"{net.name}: user equilibrium"
+    sub = text(fig, "congest-subtitle")
+    assert f"{ue.vehicle_hours:,.0f} vehicle-hours" in sub
+    assert f"mean trip {ue.mean_trip_time:.1f} min" in sub
+    assert f"of {net.n_links} links over capacity" in sub
+    fig = flow_map(net, ue.flow, scenario="morning peak")
+    assert text(fig, "congest-title").endswith("morning peak")
+
+
+def test_flow_map_marks_zone_centroids(net):
+    fig = flow_map(net, np.ones(net.n_links))
+    offsets = np.asarray(layer(fig, "zones").get_offsets())
+    expected = np.column_stack([net.x[net.zone_nodes], net.y[net.zone_nodes]])
+    np.testing.assert_allclose(offsets, expected)
+
+
+def test_coordinate_note_and_scale_in_km():
+    planar = grid(crs="")
+    note = text(flow_map(planar, np.ones(planar.n_links)), "congest-footnote")
+    assert "not known to be longitude/latitude" in note
+    utm = grid(crs="EPSG:32616")
+    note = text(flow_map(utm, np.ones(utm.n_links)), "congest-footnote")
+    assert "EPSG:32616, not longitude/latitude" in note
+    # about 0.01 degree blocks near 41.9 N: bar labelled in metres or km, not degrees
+    lonlat = grid(crs="EPSG:4326", spacing=0.01)
+    lonlat = lonlat.replace(x=lonlat.x - 87.6, y=lonlat.y + 41.9)
+    fig = flow_map(lonlat, np.ones(lonlat.n_links))
+    assert "longitude/latitude (EPSG:4326)" in text(fig, "congest-footnote")
+    labels = [t.get_text() for t in fig.axes[0].texts]
+    assert any(lbl.endswith(" km") or lbl.endswith(" m") for lbl in labels)
+    # planar coordinates whose link lengths (km) match the node distances: a 500 m bar
+    # (a fifth of the 4.24 km wide frame, rounded down to 1, 2, 2.5 or 5)
+    labels = [t.get_text() for t in flow_map(planar, np.ones(planar.n_links)).axes[0].texts]
+    assert "500 m" in labels
+    # lengths that do not match the coordinates: no unit is claimed
+    odd = planar.replace(length=planar.length * 3)
+    labels = [t.get_text() for t in flow_map(odd, np.ones(odd.n_links)).axes[0].texts]
+    assert any(lbl.endswith("coordinate units") for lbl in labels)
+
+
+def test_lonlat_map_corrects_the_aspect_for_latitude():
+    lonlat = grid(crs="EPSG:4326", spacing=0.01)
+    lonlat = lonlat.replace(x=lonlat.x + 10.0, y=lonlat.y + 60.0)
+    ax = flow_map(lonlat, np.ones(lonlat.n_links)).axes[0]
+    # one degree of latitude is 1/cos(60 deg) = 2 degrees of longitude on the ground
+    np.testing.assert_allclose(ax.get_aspect(), 1 / np.cos(np.radians(60.015)), rtol=1e-3)
+
+
+def test_map_without_coordinates_is_refused(net):
+    blank = net.replace(x=np.full(net.n_nodes, np.nan))
+    with pytest.raises(NetworkError, match="no coordinates"):
+        flow_map(blank, np.ones(net.n_links))
+
+
+def test_flow_shape_is_checked(net):
+    with pytest.raises(ValueError, match="shape"):
+        flow_map(net, np.ones(net.n_links + 1))
+
+
+def test_big_network_gets_thin_lines():
+    # a Chicago-Sketch-sized synthetic city (about 2,950 links)
+    from congest.generate import generate_network
+
+    big = generate_network("grid", n_links=2950, n_zones=300, seed=5)
+    assert 2800 < big.n_links < 3100
+    small = grid(3, 4)
+    rng = np.random.default_rng(0)
+    fig_big = flow_map(big, rng.uniform(0, 2000, big.n_links))
+    fig_small = flow_map(small, rng.uniform(0, 2000, small.n_links))
+    w_big = layer(fig_big, "links").get_linewidths()
+    w_small = layer(fig_small, "links").get_linewidths()
+    assert len(layer(fig_big, "links").get_segments()) == big.n_links
+    assert max(w_big) < max(w_small)
+    assert max(w_big) <= 4.0
+
+
+# --------------------------------------------------------------- other maps
+def test_difference_map_is_centred_on_zero(net):
+    rng = np.random.default_rng(2)
+    a = rng.uniform(0, 400, net.n_links)
+    change = rng.uniform(-130, 90, net.n_links)
+    change[:3] = 0.0
+    fig = difference_map(net, a, a + change, labels=("UE", "SO"))
+    lc = layer(fig, "links")
+    # largest change 130 (or less) rounds up to a symmetric scale
+    top = np.abs(change).max()
+    cbar_ax = next(ax for ax in fig.axes if "SO minus UE" in ax.get_ylabel())
+    lo, hi = cbar_ax.get_ylim()
+    assert lo == -hi and hi >= top
+    expected = change_colormap()(Normalize(lo, hi)(change))
+    np.testing.assert_allclose(lc.get_colors(), expected, atol=1e-12)
+    np.testing.assert_allclose(lc.get_colors()[:3], [change_colormap()(0.5)] * 3, atol=1e-12)
+    widths = np.asarray(lc.get_linewidths())
+    order = np.argsort(np.abs(change))
+    assert np.all(np.diff(widths[order]) >= -1e-12)
+    assert text(fig, "congest-title").endswith("SO against UE")
+
+
+def test_difference_map_reports_vehicle_hours(net, ue):
+    so = congest.solve(net, objective="so", tol=1e-6, max_iter=2000)
+    sub = text(difference_map(net, ue, so, labels=("UE", "SO")), "congest-subtitle")
+    dvh = so.vehicle_hours - ue.vehicle_hours
+    assert f"{abs(dvh):,.0f}" in sub and "\u2212" in sub  # SO never costs more (Wardrop)
+
+
+def test_toll_map_draws_tolled_links_and_amounts(net):
+    toll = np.zeros(net.n_links)
+    toll[[2, 5, 9]] = [1.5, 3.0, 0.75]
+    fig = toll_map(net, toll, currency="crowns")
+    lc = layer(fig, "links")
+    assert len(lc.get_segments()) == 3
+    expected = toll_colormap()(Normalize(0.0, 3.0)(toll[[2, 5, 9]]))
+    np.testing.assert_allclose(lc.get_colors(), expected, atol=1e-12)
+    assert len(layer(fig, "context").get_segments()) == net.n_links - 3
+    labels = {t.get_text() for t in fig.axes[0].texts}
+    assert {"1.5", "3", "0.75"} <= labels
+    assert any(ax.get_ylabel() == "Toll, crowns per vehicle" for ax in fig.axes)
+    flow = np.full(net.n_links, 100.0)
+    sub = text(toll_map(net, toll, flow=flow, currency="crowns"), "congest-subtitle")
+    assert "revenue 525 crowns" in sub  # (1.5 + 3 + 0.75) * 100
+
+
+def test_select_link_map_highlights_the_selection(net):
+    sel_flow = np.zeros(net.n_links)
+    sel_flow[[0, 4, 7, 12]] = [80.0, 80.0, 35.0, 45.0]
+    fig = select_link_map(net, sel_flow, 4)
+    assert len(layer(fig, "links").get_segments()) == 4
+    assert len(layer(fig, "selected").get_segments()) == 1
+    assert len(layer(fig, "context").get_segments()) == net.n_links - 4
+    assert f"link {net.link_ids[4]}" in text(fig, "congest-title")
+    with pytest.raises(ValueError, match="indices"):
+        select_link_map(net, sel_flow, net.n_links)
+
+
+# ------------------------------------------------------------------- charts
+def test_convergence_chart_one_line_per_method(net):
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", congest.ConvergenceWarning)
+        runs = [congest.solve(net, method=m, tol=1e-6, max_iter=40) for m in ("fw", "bfw")]
+    fig = convergence_chart(runs, tol=1e-6)
+    ax_it, ax_t = fig.axes
+    for ax, key in ((ax_it, "iteration"), (ax_t, "wall_time")):
+        assert ax.get_yscale() == "log"
+        lines = [ln for ln in ax.get_lines() if ln.get_label() in ("fw (UE)", "bfw (UE)")]
+        assert [ln.get_label() for ln in lines] == ["fw (UE)", "bfw (UE)"]
+        for ln, run in zip(lines, runs, strict=True):
+            np.testing.assert_allclose(ln.get_xdata(), run.history[key])
+            np.testing.assert_allclose(ln.get_ydata(), run.history["relative_gap"])
+    assert text(fig, "congest-title") == "Convergence"
+
+
+def test_sweep_chart_draws_the_sweep_table():
+    from congest.sweep import sweep
+
+    # Pigou's example (Pigou 1920): with demand q <= 1/2 UE = SO (price of anarchy 1);
+    # at q = 1 the price of anarchy is 4/3 (Roughgarden & Tardos 2002).
+    pigou = Network(node_ids=[1, 2], tail=[0, 0], head=[1, 1], capacity=1.0,
+                    free_flow_time=[1.0, 0.0], alpha=[0.0, 1.0], beta=[0.0, 1.0],
+                    cost_kind=2, zone_ids=[1, 2], zone_nodes=[0, 1],
+                    demand=[[0, 1], [0, 0]])
+    res = sweep(pigou, [0.25, 0.5, 1.0], scheduler="serial", tol=1e-8)
+    fig = sweep_chart(res.table, currency="crowns")
+    ax_p, ax_r = fig.axes
+    line = ax_p.get_lines()[0]
+    np.testing.assert_allclose(line.get_xdata(), [0.25, 0.5, 1.0])
+    np.testing.assert_allclose(line.get_ydata(), res.table["price_of_anarchy"])
+    np.testing.assert_allclose(line.get_ydata()[-1], 4 / 3, rtol=1e-4)
+    np.testing.assert_allclose(ax_r.get_lines()[0].get_ydata(),
+                               res.table["first_best_revenue"])
+    assert "crowns" in ax_r.get_ylabel()
+    assert "peak price of anarchy 1.333" in text(fig, "congest-subtitle")
+
+
+def test_learning_chart_median_and_band():
+    rng = np.random.default_rng(0)
+    days = pd.DataFrame([{"day": d, "replication": r,
+                          "total_travel_time": 1000 + 500 / d + rng.normal(0, 5),
+                          "relative_gap": 0.5 / d * rng.uniform(0.5, 1.5)}
+                         for r in range(5) for d in range(1, 31)])
+    shares = pd.DataFrame([{"day": d, "route": name, "share": s}
+                           for d in range(1, 31) for name, s in (("A", 0.6), ("B", 0.4))])
+    fig = learning_chart(days, ue_total=1000.0, route_shares=shares)
+    ax_tt, ax_gap, ax_sh = fig.axes
+    median = days.groupby("day")["total_travel_time"].median() / 60.0
+    np.testing.assert_allclose(ax_tt.get_lines()[0].get_ydata(), median.to_numpy())
+    assert len(ax_tt.collections) == 1  # the 10-90% band
+    assert ax_gap.get_yscale() == "log"
+    assert [ln.get_label() for ln in ax_sh.get_lines()] == ["A", "B"]
+    assert "5 replication(s)" in text(fig, "congest-subtitle")
+
+
+def test_scenario_chart_bars_indexed_to_the_baseline():
+    table = pd.DataFrame({"scenario": ["UE", "SO", "tolled UE"],
+                          "vehicle_hours": [1200.0, 1000.0, 1010.0],
+                          "mean_trip_time_min": [12.0, 10.0, 10.1],
+                          "max_volume_capacity": [1.4, 1.1, 1.12]})
+    fig = scenario_chart(table)
+    ax = fig.axes[0]
+    bars = {c.get_label(): c for c in ax.containers}
+    assert list(bars) == ["UE", "SO", "tolled UE"]
+    heights = [r.get_height() for r in bars["SO"]]
+    np.testing.assert_allclose(heights, [100 * 1000 / 1200, 100 * 10 / 12, 100 * 1.1 / 1.4])
+    np.testing.assert_allclose([r.get_height() for r in bars["UE"]], 100.0)
+    with pytest.raises(ValueError, match="baseline"):
+        scenario_chart(table, baseline="nope")
+
+
+# ------------------------------------------------------------------- output
+@pytest.mark.parametrize("suffix, magic", [(".png", b"\x89PNG"), (".svg", b"<?xml"),
+                                           (".pdf", b"%PDF")])
+def test_save_figure_formats(tmp_path, net, suffix, magic):
+    path = save_figure(flow_map(net, np.ones(net.n_links)), tmp_path / f"map{suffix}")
+    assert path.read_bytes().startswith(magic)
+    assert [p.name for p in tmp_path.iterdir()] == [f"map{suffix}"]  # no temp files left
+
+
+def test_save_figure_unknown_suffix(tmp_path, net):
+    with pytest.raises(ValueError, match="Unknown picture format"):
+        save_figure(flow_map(net, np.ones(net.n_links)), tmp_path / "map.bmp")
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_import_congest_does_not_import_matplotlib():
+    code = ("import sys, congest, congest.plotting, congest.io.geojson; "
+            "print('matplotlib' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    assert out.stdout.strip() == "False"
