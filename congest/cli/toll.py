@@ -1,0 +1,173 @@
+"""``congest toll NETWORK``: first-best or second-best toll table."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import click
+
+from ._common import friendly_errors
+from .solve import check_paths, load_network, network_options
+
+__all__ = ["command", "parse_groups"]
+
+
+def _slug(text):
+    out = "".join(ch if ch.isalnum() else "-" for ch in str(text).lower()).strip("-")
+    return out or "network"
+
+
+def parse_groups(net, on_links, on_attribute):
+    """Toll groups from ``--on`` (comma-separated link ids) and ``--on-attribute``.
+
+    Each option value is one group whose links share one toll.
+    """
+    from ..exceptions import InputError
+
+    groups = []
+    for text in on_links:
+        ids = []
+        for part in str(text).split(","):
+            part = part.strip()
+            if not part:
+                continue
+            try:
+                ids.append(int(part))
+            except ValueError:
+                raise InputError("--on takes link ids separated by commas",
+                                 value=part) from None
+            if int(part) not in net._link_lookup:
+                raise InputError("--on names a link the network does not have", value=part)
+        if not ids:
+            raise InputError("--on needs at least one link id", value=text)
+        groups.append(ids)
+    for text in on_attribute:
+        name, sep, wanted = str(text).partition("=")
+        name, wanted = name.strip(), wanted.strip()
+        if not sep or not name or not wanted:
+            raise InputError("--on-attribute takes NAME=VALUE, e.g. facility_type=bridge",
+                             value=text)
+        if name not in net.link_attrs:
+            known = ", ".join(sorted(net.link_attrs)) or "none"
+            raise InputError(f"the network has no link attribute {name!r} (attributes: "
+                             f"{known})", value=text)
+        from ..io.tollplan import _matches
+
+        mask = _matches(net.link_attrs[name], wanted)
+        if not mask.any():
+            raise InputError(f"no link has {name} equal to {wanted!r}", value=text)
+        groups.append(net.link_ids[mask].tolist())
+    return groups
+
+
+@click.command("toll")
+@click.argument("network", type=click.Path(exists=True))
+@click.option("--on", "on_links", multiple=True, metavar="IDS",
+              help="Second best: tollable links by id, comma-separated; the links of one "
+                   "--on share one toll (both directions of a bridge). Repeat for more "
+                   "groups. Without --on or --on-attribute: first-best tolls on every link.")
+@click.option("--on-attribute", "on_attribute", multiple=True, metavar="NAME=VALUE",
+              help="Second best: one toll group of every link whose attribute NAME equals "
+                   "VALUE (e.g. facility_type=bridge). Repeatable.")
+@click.option("--max-charge", type=click.FloatRange(min=0, min_open=True), default=None,
+              metavar="MONEY",
+              help="Second best: highest toll searched, money per vehicle. Default: twice "
+                   "the largest first-best toll.")
+@click.option("--search", type=click.Choice(["auto", "bounded", "powell", "nelder-mead"]),
+              default="auto", show_default=True,
+              help="Second best: search over toll levels (auto: bounded scalar search "
+                   "for one group, Powell for several).")
+@click.option("--max-evals", type=click.IntRange(min=2), default=200, show_default=True,
+              help="Second best: cap on equilibrium solves.")
+@click.option("--out", "out", type=click.Path(dir_okay=False), default=None,
+              help="Toll table CSV. Default: <network>-tolls.csv in the current folder.")
+@click.option("--gap", type=float, default=1e-8, show_default=True,
+              help="Target relative gap of every equilibrium solve.")
+@click.option("--method", default="auto", show_default=True,
+              help="Equilibrium method: auto, or one of congest.METHODS.")
+@click.option("--max-iter", type=click.IntRange(min=1), default=None,
+              help="Iteration cap of each solve.")
+@network_options
+@friendly_errors
+def command(network, on_links, on_attribute, max_charge, search, max_evals, out, gap,
+            method, max_iter, **net_opts):
+    """Write the first-best (marginal-cost) or second-best toll table of NETWORK.
+
+    Without --on/--on-attribute every link gets its marginal-cost toll x t'(x) at the
+    system optimum, and the tolled equilibrium is checked against it. With them, congest
+    searches toll levels on those links only that minimise total travel time under the
+    drivers' response, and reports the share of the first-best gain they recover.
+
+    \b
+    Examples:
+      congest toll networks/quillhaven
+      congest toll networks/quillhaven --on-attribute facility_type=bridge
+      congest toll networks/quillhaven --on 101,102 --on 205,206 --max-charge 8
+    """
+    import pandas as pd
+
+    from ..exceptions import InputError
+    from ..io.atomic import atomic_write
+    from ..pricing import first_best, second_best
+
+    net, layout = load_network(network, **net_opts)
+    check_paths(net, layout)
+    groups = parse_groups(net, on_links, on_attribute)
+    if out is None:
+        out = Path(f"{_slug(Path(network).resolve().stem)}-tolls.csv")
+    fb = first_best(net, tol=gap, method=method, max_iter=max_iter)
+    cur = net.currency
+    ends = {"link_id": net.link_ids, "from_node": net.node_ids[net.tail],
+            "to_node": net.node_ids[net.head]}
+    if not groups:
+        frame = pd.DataFrame({**ends, "so_flow": fb.so.flow,
+                              "toll_min": fb.tolls_minutes, "toll_money": fb.tolls_money,
+                              "tolled_flow": fb.tolled_ue.flow, "ue_flow": fb.ue.flow})
+        lines = [
+            f"first-best tolls on {fb.tolled_links.size} of {net.n_links} links "
+            f"(value of time {net.value_of_time:g} {cur}/h)",
+            f"vehicle-hours: UE {fb.ue.vehicle_hours:,.1f}, SO {fb.so.vehicle_hours:,.1f}, "
+            f"tolled {fb.tolled_ue.vehicle_hours:,.1f}",
+            f"price of anarchy {fb.price_of_anarchy:.4f}; tolled flows within "
+            f"{fb.max_flow_deviation:.2g} vehicles of SO",
+            f"revenue {fb.revenue_money:,.2f} {cur}, mean toll {fb.mean_toll_per_trip:.2f} "
+            f"{cur} per trip",
+            f"gaps: UE {fb.ue.relative_gap:.1e}, SO {fb.so.relative_gap:.1e}, tolled UE "
+            f"{fb.tolled_ue.relative_gap:.1e}",
+        ]
+    else:
+        bounds = None if max_charge is None else (0.0, max_charge)
+        sb = second_best(net, groups, bounds=bounds, tol=gap, method=method, search=search,
+                         max_evals=max_evals, solver_max_iter=max_iter, first_best_result=fb)
+        rows = []
+        for g, (idx, money, minutes) in enumerate(zip(sb.groups, sb.tolls_money,
+                                                      sb.tolls_minutes, strict=True)):
+            for i in idx:
+                rows.append({"group": g + 1, "link_id": int(net.link_ids[i]),
+                             "from_node": int(net.node_ids[net.tail[i]]),
+                             "to_node": int(net.node_ids[net.head[i]]),
+                             "toll_min": float(minutes), "toll_money": float(money),
+                             "ue_flow": float(fb.ue.flow[i]),
+                             "tolled_flow": float(sb.tolled_ue.flow[i]),
+                             "first_best_toll_money": float(fb.tolls_money[i])})
+        frame = pd.DataFrame(rows)
+        share = sb.share_of_first_best
+        share_text = "n/a (UE is already SO)" if math.isnan(share) else f"{100 * share:.1f}%"
+        tolls = ", ".join(f"group {g + 1}: {m:.2f} {cur}" for g, m in enumerate(sb.tolls_money))
+        lines = [
+            f"second-best tolls on {len(sb.groups)} group(s), "
+            f"{sum(len(g) for g in sb.groups)} links: {tolls}",
+            f"vehicle-hours: UE {sb.system_cost_ue / 60:,.1f}, SO {sb.system_cost_so / 60:,.1f},"
+            f" tolled {sb.system_cost_tolled / 60:,.1f}",
+            f"share of the first-best gain recovered: {share_text}",
+            f"revenue {sb.revenue_money:,.2f} {cur}; {sb.evaluations} equilibrium solves "
+            f"({sb.method}{'' if sb.converged else ', not converged: ' + sb.message})",
+        ]
+    try:
+        with atomic_write(out, newline="") as fh:
+            frame.to_csv(fh, index=False, lineterminator="\n")
+    except OSError as err:
+        raise InputError(f"cannot write the toll table: {err.strerror}", path=out) from err
+    for line in lines + [f"toll table: {out}"]:
+        click.echo(line)
