@@ -67,8 +67,12 @@ class _Direction:
             d1 = self.s1 - x
             num = d1 @ (hess * (y - x))
             den = d1 @ (hess * (y - self.s1))
-            if den != 0.0 and num / den >= 0.0:
-                a = min(num / den, 1.0 - _DELTA)
+            # A weight above 1 - delta has no conjugate point on the segment [y, s1];
+            # clipping it to 1 - delta (as in the paper) makes s ~ s1, a direction the
+            # last exact line search already exhausted, and the method stalls. Take the
+            # plain Frank-Wolfe target instead.
+            if den != 0.0 and 0.0 <= num / den <= 1.0 - _DELTA:
+                a = num / den
             else:
                 a = 0.0
             return self._keep(a * self.s1 + (1.0 - a) * y)
