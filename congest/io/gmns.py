@@ -435,7 +435,7 @@ def write_gmns(net: Network, folder, *, trips_file=TRIPS_FILE, description="") -
         "link_id": net.link_ids, "from_node_id": net.node_ids[net.tail],
         "to_node_id": net.node_ids[net.head], "directed": np.full(m, "true"),
         "length": net.length, "lanes": _whole(lanes), "capacity": net.capacity / lanes,
-        "free_speed": speed, "toll": net.toll,
+        "free_speed": _rounded(speed), "toll": net.toll,
         "u_free_flow_time": net.free_flow_time,
         "u_cost_kind": [_KIND_NAMES[int(k)] for k in net.cost_kind],
         "u_alpha": net.alpha, "u_beta": net.beta, "u_fixed_cost": net.fixed_cost,
@@ -463,6 +463,15 @@ def write_gmns(net: Network, folder, *, trips_file=TRIPS_FILE, description="") -
         temps[targets[SETTINGS_FILE]].write_text(json.dumps(settings, indent=2) + "\n",
                                                  encoding="utf-8")
     return folder
+
+
+def _rounded(values, digits=10):
+    """Derived values to ``digits`` significant digits (45.00000000000001 -> 45.0)."""
+    out = np.asarray(values, dtype=np.float64).copy()
+    ok = np.isfinite(out) & (out != 0)
+    scale = 10.0 ** (digits - 1 - np.floor(np.log10(np.abs(out[ok]))))
+    out[ok] = np.round(out[ok] * scale) / scale
+    return out
 
 
 def _whole(values):
