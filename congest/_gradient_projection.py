@@ -641,7 +641,10 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
             problem.all_or_nothing(cost)  # raises NetworkError naming the pairs
         sptt = float(od_dist @ od_q)
         tstt = float(x @ cost)
-        gap = relative_gap(tstt, sptt) if tstt > 0 else np.inf
+        # OD pairs without routes yet (cold start, or new pairs in a warm start) have no
+        # flow, so the gap of the partial loading means nothing
+        loaded = k > 0 or not (pool.od_first < 0).any()
+        gap = relative_gap(tstt, sptt) if tstt > 0 and loaded else np.inf
         elapsed = time.perf_counter() - start_time
         if k > 0 or np.isfinite(gap):
             history["iteration"].append(k)
