@@ -121,19 +121,26 @@ def test_two_route_affine_exercise():
 NETWORKS_DIR = Path(__file__).resolve().parents[1] / "networks"
 
 
-@pytest.mark.parametrize("name,check", [
-    ("pigou", lambda ue, so: (ue.total_cost, so.total_cost, 1.0, 0.75)),
-    ("braess", lambda ue, so: (ue.total_cost, so.total_cost, 552.0, 498.0)),
-])
-def test_shipped_textbook_files(name, check):
-    # The same closed forms as above, from the files shipped in networks/.
-    candidates = [p for p in NETWORKS_DIR.glob(f"{name}*") if p.is_dir()]
-    if not candidates:
+# Expected (UE total cost, SO total cost, UE link flows) from the closed forms above.
+SHIPPED = {
+    "pigou": (1.0, 0.75, [0.0, 1.0]),
+    "braess-before": (498.0, 498.0, [3.0, 3.0, 3.0, 3.0]),
+    "braess": (552.0, 498.0, [4.0, 2.0, 2.0, 4.0, 2.0]),
+}
+
+
+@pytest.mark.parametrize("name", sorted(SHIPPED))
+def test_shipped_textbook_files(name):
+    # The same closed forms as above (Pigou 1920; Braess, Nagurney & Wakolbinger 2005),
+    # from the GMNS folders shipped in networks/.
+    folder = NETWORKS_DIR / name
+    if not folder.is_dir():
         pytest.skip(f"no {name} network folder shipped under {NETWORKS_DIR}")
     from congest.io import read_network
 
-    net = read_network(candidates[0])
+    net = read_network(folder)
     ue, so = _solve(net, "ue"), _solve(net, "so")
-    got_ue, got_so, want_ue, want_so = check(ue, so)
-    assert_allclose(got_ue, want_ue, rtol=1e-6)
-    assert_allclose(got_so, want_so, rtol=1e-6)
+    want_ue, want_so, flows = SHIPPED[name]
+    assert_allclose(ue.total_cost, want_ue, rtol=1e-6)
+    assert_allclose(so.total_cost, want_so, rtol=1e-6)
+    assert_allclose(ue.flow, flows, atol=1e-5)
