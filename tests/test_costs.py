@@ -60,7 +60,7 @@ def test_time_matches_defining_formulas():
     v = rng.uniform(0.0, 2.5, kind.size) * cap
     model = CostModel(kind=kind, t0=t0, alpha=alpha, beta=beta, capacity=cap,
                       constant=np.zeros(kind.size))
-    expected = [_reference_time(*args) for args in zip(kind, t0, alpha, beta, cap, v)]
+    expected = [_reference_time(*args) for args in zip(kind, t0, alpha, beta, cap, v, strict=True)]
     assert_allclose(model.time(v), expected, rtol=1e-13)
 
 
@@ -111,7 +111,7 @@ def test_integral_matches_quadrature(seed):
                       constant=np.zeros(kind.size))
     expected = [quad(lambda u, args=args: _reference_time(*args, u), 0.0, vi,
                      epsabs=0, epsrel=1e-12)[0]
-                for args, vi in zip(zip(kind, t0, alpha, beta, cap), v)]
+                for args, vi in zip(zip(kind, t0, alpha, beta, cap, strict=True), v, strict=True)]
     assert_allclose(model.integral(v), expected, rtol=1e-10)
 
 
@@ -167,7 +167,7 @@ def test_scalar_kernels_agree_with_vectorised():
     for f_vec, f_sc in ((model.time, time_scalar), (model.derivative, derivative_scalar),
                         (model.integral, integral_scalar)):
         vals = [f_sc(k, a, b, c, d, e) for k, a, b, c, d, e in zip(kind, t0, alpha, beta,
-                                                                     cap, v)]
+                                                                     cap, v, strict=True)]
         assert_allclose(f_vec(v), vals, rtol=1e-15)
 
 
@@ -188,7 +188,8 @@ def test_preload_semantics():
     assert_allclose(pre.marginal(v), base.marginal(v + p), rtol=1e-14)
     expected = [quad(lambda u, args=args, pi=pi: _reference_time(*args, u + pi), 0.0, vi,
                      epsabs=0, epsrel=1e-12)[0]
-                for args, pi, vi in zip(zip(kind, t0, alpha, beta, cap), p, v)]
+                for args, pi, vi in zip(zip(kind, t0, alpha, beta, cap, strict=True), p, v,
+                                        strict=True)]
     assert_allclose(pre.integral(v), expected, rtol=1e-9)
     assert_allclose(pre.beckmann(v), np.sum(expected) + const @ v, rtol=1e-9)
     assert_allclose(pre.total_cost(v), (v + p) @ base.cost(v + p), rtol=1e-14)
