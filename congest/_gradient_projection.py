@@ -421,15 +421,16 @@ def _import(old_od_ptr, old_path_ptr, old_links, old_flow, old_index, scale, od_
 
 
 @numba.njit(cache=True)
-def _export_counts(od_first, p_len, p_next, counts, lengths):
+def _export_counts(od_first, p_len, p_flow, p_next, counts, lengths):
     n = 0
     for od in range(od_first.size):
         p = od_first[od]
         c = 0
         while p >= 0:
-            lengths[n] = p_len[p]
-            n += 1
-            c += 1
+            if p_flow[p] > 0.0:  # a cheapest route may have just joined with no flow
+                lengths[n] = p_len[p]
+                n += 1
+                c += 1
             p = p_next[p]
         counts[od] = c
     return n
@@ -442,11 +443,12 @@ def _export_fill(od_first, p_start, p_len, p_flow, p_next, pool, path_ptr, path_
     for od in range(od_first.size):
         p = od_first[od]
         while p >= 0:
-            s = path_ptr[r]
-            for i in range(p_len[p]):
-                path_links[s + i] = pool[p_start[p] + i]
-            path_flow[r] = p_flow[p]
-            r += 1
+            if p_flow[p] > 0.0:
+                s = path_ptr[r]
+                for i in range(p_len[p]):
+                    path_links[s + i] = pool[p_start[p] + i]
+                path_flow[r] = p_flow[p]
+                r += 1
             p = p_next[p]
 
 
@@ -510,7 +512,7 @@ class _Pool:
         n_od = self.od_first.size
         counts = np.zeros(n_od, dtype=np.int64)
         lengths = np.zeros(int(self.counters[_N_PATHS]), dtype=np.int64)
-        n = _export_counts(self.od_first, self.length, self.next, counts, lengths)
+        n = _export_counts(self.od_first, self.length, self.flow, self.next, counts, lengths)
         od_ptr = np.zeros(n_od + 1, dtype=np.int64)
         np.cumsum(counts, out=od_ptr[1:])
         path_ptr = np.zeros(n + 1, dtype=np.int64)
