@@ -126,7 +126,8 @@ class Table:
             return out.astype(np.int64) if integer else out
         raw = self.frame[column]
         empty = (raw == "").to_numpy()
-        values = pd.to_numeric(raw.where(~empty, "0"), errors="coerce").to_numpy(np.float64)
+        values = pd.to_numeric(raw.where(~empty, "0"), errors="coerce").to_numpy(
+            np.float64, copy=True)
         if empty.any():
             if default is None:
                 i = int(np.flatnonzero(empty)[0])
@@ -272,13 +273,13 @@ def demand_matrix(table, origins, destinations, trips, zone_ids, *, origin_col,
     n = zone_ids.size
     oi = np.array([index.get(int(v), -1) for v in origins], dtype=np.int64)
     di = np.array([index.get(int(v), -1) for v in destinations], dtype=np.int64)
-    for col, idx, vals in ((origin_col, oi, origins), (destination_col, di, destinations)):
-        bad = np.flatnonzero(idx < 0)
-        if bad.size:
-            i = int(bad[0])
-            more = f" ({bad.size} rows name unknown {zone_word}s)" if bad.size > 1 else ""
-            table.fail(f"unknown {zone_word}: no {zone_word} with this id{more}", index=i,
-                       column=col, value=int(vals[i]))
+    bad = np.flatnonzero((oi < 0) | (di < 0))
+    if bad.size:
+        i = int(bad[0])
+        col, vals = (origin_col, origins) if oi[i] < 0 else (destination_col, destinations)
+        more = f" ({bad.size} rows name unknown {zone_word}s)" if bad.size > 1 else ""
+        table.fail(f"unknown {zone_word}: no {zone_word} with this id{more}", index=i,
+                   column=col, value=int(vals[i]))
     if n:
         key = oi * n + di
         check_unique_pairs(table, key, origin_col, origins, destinations)

@@ -33,6 +33,7 @@ def to_networkx(net: Network, *, multigraph=None):
         (name), ``toll, length, fixed_cost`` and every ``link_attrs`` column; node
         attributes ``x, y``, ``zone_id`` on centroids and every ``node_attrs`` column;
         graph attributes ``demand`` (dict ``(origin zone, destination zone) -> trips``),
+        ``link_order`` (link ids in the network's order, used by :func:`from_networkx`),
         ``name``, ``period_hours``, ``value_of_time``, ``currency``, ``length_unit``,
         ``crs``, ``through_centroids``.
 
@@ -59,6 +60,8 @@ def to_networkx(net: Network, *, multigraph=None):
                          for i, j, v in zip(o, d, q, strict=True)}
     for key in _GRAPH_FIELDS:
         G.graph[key] = getattr(net, key)
+    # networkx lists edges by adjacency, so record the link order for from_networkx
+    G.graph["link_order"] = [int(v) for v in net.link_ids]
     zone_of = dict(zip(net.zone_nodes.tolist(), net.zone_ids.tolist(), strict=True))
     for i, node in enumerate(net.node_ids.tolist()):
         data = {"x": float(net.x[i]), "y": float(net.y[i])}
@@ -117,7 +120,8 @@ def from_networkx(G, *, demand=None, zones=None, through_centroids=None, name=No
     Returns
     -------
     Network
-        Links in the graph's edge order.
+        Links in the order of ``G.graph["link_order"]`` (link ids, as written by
+        :func:`to_networkx`) when it matches the edges, else in the graph's edge order.
 
     Raises
     ------
@@ -134,6 +138,12 @@ def from_networkx(G, *, demand=None, zones=None, through_centroids=None, name=No
     index = {int(v): i for i, v in enumerate(node_ids)}
     edges = list(G.edges(data=True, keys=True)) if G.is_multigraph() else [
         (u, v, None, d) for u, v, d in G.edges(data=True)]
+    order = G.graph.get("link_order")
+    if order is not None:
+        position = {int(v): i for i, v in enumerate(order)}
+        keyed = [d.get("link_id") for *_, d in edges]
+        if len(position) == len(edges) and all(k in position for k in keyed):
+            edges = [edges[i] for i in np.argsort([position[k] for k in keyed])]
     m = len(edges)
     values = {key: np.full(m, np.nan) for key in ("capacity", "free_flow_time", "alpha",
                                                    "beta", "toll", "length", "fixed_cost")}
