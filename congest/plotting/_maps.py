@@ -23,6 +23,7 @@ __all__ = [
     "difference_map",
     "toll_map",
     "select_link_map",
+    "select_link_flow",
     "load_colormap",
     "toll_colormap",
     "change_colormap",
@@ -87,6 +88,20 @@ def _nice(value, *, up=True, fine=False):
     if up:
         return next(s for s in steps if s * base >= value * (1 - 1e-9)) * base
     return [s for s in steps if s * base <= value * (1 + 1e-9)][-1] * base
+
+
+def _money(value):
+    """Money per vehicle: two decimals, more for amounts below one hundredth."""
+    return f"{value:,.2f}" if abs(value) >= 0.01 or value == 0 else f"{value:.2g}"
+
+
+def _samples(top):
+    """Three round values for a width key: the largest below ``top``, half, a quarter."""
+    if not (top > 0 and math.isfinite(top)):
+        return []
+    first = _nice(top, up=False, fine=True)
+    return sorted({first, _nice(first / 2, up=False, fine=True),
+                   _nice(first / 4, up=False, fine=True)}, reverse=True)
 
 
 def _fmt(value):
@@ -319,10 +334,13 @@ class _Frame:
                           ha="left", gid="congest-subtitle")
 
     def footnote(self, extra=""):
+        import textwrap
+
         note = coordinate_note(self.net.crs)
         text = " ".join(s for s in (note, extra, "Planning-level estimate.") if s)
-        self.fig.text(0.03, 0.02, text, fontsize=7.5, color=_MUTED, ha="left", va="bottom",
-                      gid="congest-footnote")
+        width = int(self.fig.get_figwidth() * 16.5)  # characters of 7.5 pt text per line
+        self.fig.text(0.03, 0.012, textwrap.fill(text, width), fontsize=7.5, color=_MUTED,
+                      ha="left", va="bottom", gid="congest-footnote", linespacing=1.3)
 
 
 def _key_figures(eq):
@@ -414,9 +432,7 @@ def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
     cbar.ax.axhline(1.0, color="white", lw=1.2)
     cbar.ax.set_yticklabels([f"{t:.2f}" + ("  at capacity" if abs(t - 1.0) < 1e-9 else "")
                              for t in ticks])
-    samples = sorted({_nice(vref, up=False), _nice(vref / 2, up=False),
-                      _nice(vref / 5, up=False)}, reverse=True) if vref > 0 else []
-    frame.add_width_key(samples, f"Volume, vehicles\nin the {_period(net)}",
+    frame.add_width_key(_samples(vref), f"Volume, vehicles\nin the {_period(net)}",
                         reference=vref)
     frame.add_scale_bar()
     if scenario is None:
@@ -472,9 +488,7 @@ def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), key_figure=Non
         frame.add_zones()
     frame.add_colorbar(cmap, norm, f"Change in volume, {labels[1]} minus {labels[0]}\n"
                        "(vehicles)")
-    samples = sorted({_nice(biggest, up=False), _nice(biggest / 2, up=False),
-                      _nice(biggest / 5, up=False)}, reverse=True) if biggest > 0 else []
-    frame.add_width_key(samples, "Size of change,\nvehicles", reference=biggest)
+    frame.add_width_key(_samples(biggest), "Size of change,\nvehicles", reference=biggest)
     frame.add_scale_bar()
     tiny = 1e-9 * max(float(np.max(np.abs(a))) if a.size else 0.0, 1.0)
     n_up, n_down = int(np.sum(change > tiny)), int(np.sum(change < -tiny))
@@ -524,7 +538,9 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     amount = _as_flow(net, net.toll if toll is None else toll, "toll")
     currency = net.currency if currency is None else currency
     volume = None if flow is None else _as_flow(net, flow, "flow")
-    tolled = amount > 0
+    # rounding noise (1e-25 where an SO flow is zero) is no toll
+    tolled = amount > 1e-9 * max(float(np.max(np.abs(amount))) if amount.size else 0.0,
+                                 1e-12)
     frame = _Frame(net, figsize=figsize)
     hair = np.full(net.n_links, _HAIRLINE * 2)
     context = np.tile(np.array([[0.79, 0.81, 0.83, 1.0]]), (net.n_links, 1))
@@ -542,8 +558,7 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     frame.add_links(widths, cmap(norm(amount)), mask=tolled, zorder=3)
     frame.add_colorbar(cmap, norm, f"Toll, {currency} per vehicle")
     if volume is not None and vref > 0:
-        samples = sorted({_nice(vref, up=False), _nice(vref / 4, up=False)}, reverse=True)
-        frame.add_width_key(samples, f"Volume on tolled links,\nvehicles in the "
+        frame.add_width_key(_samples(vref), f"Volume on tolled links,\nvehicles in the "
                             f"{_period(net)}", reference=vref)
     frame.add_scale_bar()
     k = int(tolled.sum())
@@ -559,8 +574,8 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
                           bbox={"boxstyle": "round,pad=0.12", "fc": "white", "ec": "none",
                                 "alpha": 0.85})
     if k:
-        sub = (f"{k:,} tolled links  ·  {amount[tolled].min():.3g} to "
-               f"{amount[tolled].max():.3g} {currency} per vehicle")
+        sub = (f"{k:,} tolled links  ·  {_money(amount[tolled].min())} to "
+               f"{_money(amount[tolled].max())} {currency} per vehicle")
         if volume is not None:
             sub += f"  ·  revenue {float(amount @ volume):,.0f} {currency} per period"
     else:
@@ -568,6 +583,40 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     frame.titles(f"{net.name}: {scenario}", sub)
     frame.footnote()
     return frame.fig
+
+
+def select_link_flow(result, links, *, require="any"):
+    """Link volumes of the trips whose routes use the selected links.
+
+    Parameters
+    ----------
+    result : Equilibrium
+        From a route-based method (see :func:`congest.routes.route_flows`).
+    links : int or array_like of int
+        Link indices.
+    require : {"any", "all"}, default "any"
+        A route counts when it uses any of the links, or all of them.
+
+    Returns
+    -------
+    ndarray of shape (n_links,)
+        On each selected link it equals the link's volume (``require="any"``, one link).
+    """
+    from ..routes import route_flows
+
+    if require not in ("any", "all"):
+        raise ValueError(f"Unknown require {require!r}; expected 'any' or 'all'")
+    rf = route_flows(result)
+    n = result.network.n_links
+    sel = np.unique(np.atleast_1d(np.asarray(links, dtype=np.int64)))
+    chosen = np.zeros(n, dtype=bool)
+    chosen[sel] = True
+    lengths = np.diff(rf.route_ptr)
+    route_of_entry = np.repeat(np.arange(lengths.size), lengths)
+    hits = np.bincount(route_of_entry, weights=chosen[rf.route_links], minlength=lengths.size)
+    uses = hits >= (1 if require == "any" else sel.size)
+    per_entry = np.repeat(np.where(uses, rf.flow, 0.0), lengths)
+    return np.bincount(rf.route_links, weights=per_entry, minlength=n)
 
 
 def select_link_map(network, select_flow, selected, *, label=None, figsize=(10.0, 8.0)):
@@ -578,7 +627,7 @@ def select_link_map(network, select_flow, selected, *, label=None, figsize=(10.0
     network : Network
     select_flow : array_like of shape (n_links,)
         Volume on every link of the trips that use the selected link(s), e.g. from
-        ``congest.routes.select_link``.
+        :func:`select_link_flow`.
     selected : int or sequence of int
         Link *indices* of the selected links.
     label : str, optional
@@ -616,9 +665,7 @@ def select_link_map(network, select_flow, selected, *, label=None, figsize=(10.0
     frame.add_links(outline, ink, layer="selected", zorder=2, mask=is_sel, place_as=widths)
     frame.add_links(widths, cmap(norm(volume)), mask=used, zorder=3)
     frame.add_colorbar(cmap, norm, "Volume of selected trips, vehicles")
-    samples = sorted({_nice(vref, up=False), _nice(vref / 4, up=False)},
-                     reverse=True) if vref > 0 else []
-    y_next = frame.add_width_key(samples, "Volume of selected\ntrips, vehicles",
+    y_next = frame.add_width_key(_samples(vref), "Volume of selected\ntrips, vehicles",
                                  reference=vref)
     frame.kax.plot([0.02, 0.30], [y_next, y_next], color=ink[0], lw=4.0,
                    solid_capstyle="butt")
