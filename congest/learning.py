@@ -136,15 +136,36 @@ def _link_costs(route_flow, l_rptr, l_ridx, kind, t0, alpha, beta, cap, const, x
 
 
 @numba.njit(cache=True, parallel=True)
-def _route_costs(link_cost, r_lptr, r_lidx, out):
-    n_rep, n_routes = out.shape
+def _route_costs(c_act, c_nom, r_lptr, r_lidx, out_act, out_nom):
+    """Route costs (sums over links) at the actual and at the nominal link costs."""
+    n_rep, n_routes = out_act.shape
     for item in numba.prange(n_rep * n_routes):
         r = item // n_routes
         p = item - r * n_routes
         s = 0.0
+        s_nom = 0.0
         for k in range(r_lptr[p], r_lptr[p + 1]):
-            s += link_cost[r, r_lidx[k]]
-        out[r, p] = s
+            s += c_act[r, r_lidx[k]]
+            s_nom += c_nom[r, r_lidx[k]]
+        out_act[r, p] = s
+        out_nom[r, p] = s_nom
+
+
+@numba.njit(cache=True, parallel=True)
+def _od_best(route_value, od_ptr, out_min, out_arg):
+    """Cheapest route of every OD pair: its value and its index within the pair."""
+    n_rep = route_value.shape[0]
+    n_od = od_ptr.size - 1
+    for item in numba.prange(n_rep * n_od):
+        r = item // n_od
+        od = item - r * n_od
+        best = 0
+        start = od_ptr[od]
+        for j in range(1, od_ptr[od + 1] - start):
+            if route_value[r, start + j] < route_value[r, start + best]:
+                best = j
+        out_min[r, od] = route_value[r, start + best]
+        out_arg[r, od] = best
 
 
 @numba.njit(cache=True, parallel=True)
@@ -511,12 +532,11 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
     valid = pad >= 0
     pad_safe = np.where(valid, pad, 0)
 
-    def od_argmin(route_values):  # (R, n_routes) -> (R, n_od) local index
-        vals = np.where(valid, route_values[:, pad_safe], np.inf)
-        return np.argmin(vals, axis=2)
-
-    def od_min(route_values):
-        return np.where(valid, route_values[:, pad_safe], np.inf).min(axis=2)
+    def od_argmin(route_values):  # (R, n_routes) -> (R, n_od) index within the pair
+        out_min = np.empty((route_values.shape[0], n_od))
+        out_arg = np.empty((route_values.shape[0], n_od), dtype=np.int64)
+        _od_best(np.ascontiguousarray(route_values), od_ptr, out_min, out_arg)
+        return out_arg
 
     if isinstance(cost_scale, str):
         if cost_scale != "ue":
@@ -587,7 +607,10 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
     x = np.zeros((R, network.n_links))
     t_act = np.zeros_like(x)
     c_nom = np.zeros_like(x)
+    c_act = np.zeros_like(x)
     c_route = np.zeros((R, n_routes))
+    od_min = np.zeros((R, n_od))
+    od_arg = np.zeros((R, n_od), dtype=np.int64)
     c_route_nom = np.zeros((R, n_routes))
     xi = np.ones((R, network.n_links))
     eps = np.ones((R, n_agents, width)) if estimate_noise > 0 else np.ones((1, 1, 1))
@@ -630,9 +653,8 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
                      od_agent_ptr, od_ptr, n_routes, f)
         _link_costs(f, l_rptr, l_ridx, model.kind, model.t0, model.alpha, model.beta,
                     model.capacity, model.constant, xi, supply_noise > 0, x, t_act, c_nom)
-        c_act = t_act + model.constant[None, :]
-        _route_costs(c_act, r_lptr, r_lidx, c_route)
-        _route_costs(c_nom, r_lptr, r_lidx, c_route_nom)
+        np.add(t_act, model.constant[None, :], out=c_act)
+        _route_costs(c_act, c_nom, r_lptr, r_lidx, c_route, c_route_nom)
         route_cum += c_route
         sum_x += x
         sum_f += f
@@ -641,7 +663,8 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
         tstt_nom = np.einsum("ij,ij->i", x, c_nom)
         rec["total_travel_time"][t] = np.einsum("ij,ij->i", x, t_act)
         rec["total_cost"][t] = np.einsum("ij,ij->i", x, c_act)
-        rs_sptt = (od_min(c_route_nom) * q_od[None, :]).sum(axis=1)
+        _od_best(c_route_nom, od_ptr, od_min, od_arg)
+        rs_sptt = od_min @ q_od
         rec["route_set_gap"][t] = _gaps(tstt_nom, rs_sptt)
         if t % gap_every == 0 or t == days - 1:
             sptt = _network_sptt(c_nom, sp.origins, sp.zone_nodes, demand, sp.indptr,
@@ -675,7 +698,7 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
             prev_driven[:] = driven
         rec["mean_regret"][t] = num / total_q / (t + 1)
         rec["max_regret"][t] = worst / (t + 1)
-        adv[:] = od_argmin(c_route)
+        _od_best(c_route, od_ptr, od_min, adv)
 
     mean_x = sum_x / days
     mean_f = sum_f / days
