@@ -87,10 +87,13 @@ def load_network(network, *, demand=None, zones=None, through=None, toll_weight=
 
 def check_paths(net, layout):
     """Raise a clear InputError when OD pairs with trips have no path."""
+    import numpy as np
+
     from ..exceptions import InputError
     from ..paths import ShortestPaths
 
-    pairs = ShortestPaths(net).unreachable_pairs()
+    _, od_cost = ShortestPaths(net).all_or_nothing(net.free_flow_time + 1.0)
+    pairs = np.argwhere((net.demand > 0) & ~np.isfinite(od_cost))
     if len(pairs) == 0:
         return
     shown = ", ".join(f"{net.zone_ids[o]}->{net.zone_ids[d]}" for o, d in pairs[:SHOWN_PAIRS])
