@@ -292,7 +292,8 @@ def _warm_solve(net, *, warm_start, **kw):
     return solve(net, **kw)
 
 
-def first_best(net, *, tol=1e-8, method="auto", max_iter=None, ue=None, so=None) -> FirstBest:
+def first_best(net, *, tol=1e-8, method="auto", max_iter=None, ue=None, so=None,
+               tolled_from_so=True) -> FirstBest:
     """User equilibrium, system optimum and marginal-cost (first-best) tolls.
 
     Parameters
@@ -309,14 +310,14 @@ def first_best(net, *, tol=1e-8, method="auto", max_iter=None, ue=None, so=None)
         Iteration cap of each solve.
     ue, so : Equilibrium, optional
         Solutions already at hand (skip those solves).
+    tolled_from_so : bool, default True
+        Warm-start the tolled UE from the SO solution, which is its exact answer (the
+        solve then only confirms the equilibrium conditions). False solves it from
+        scratch, so ``max_flow_deviation`` is an independent check of the tolls.
 
     Returns
     -------
     FirstBest
-
-    Notes
-    -----
-    The tolled UE is warm-started from the SO solution, which is its exact answer.
 
     References
     ----------
@@ -343,7 +344,8 @@ def first_best(net, *, tol=1e-8, method="auto", max_iter=None, ue=None, so=None)
         so = solve(net, objective="so", warm_start=None, **kw)
     tolls = marginal_cost_tolls(so)
     tolled_net = net.with_tolls(tolls)
-    tolled = _warm_solve(tolled_net, objective="ue", warm_start=so, **kw)
+    tolled = _warm_solve(tolled_net, objective="ue",
+                         warm_start=so if tolled_from_so else None, **kw)
     vot = net.value_of_time
     revenue_min = float(tolls @ tolled.flow)
     revenue_money = float(minutes_to_money(revenue_min, vot))

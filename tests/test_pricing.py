@@ -10,7 +10,7 @@ from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 from random_networks import random_network
 
-from congest import solve
+from congest import METHODS, solve
 from congest.exceptions import SolverError
 from congest.network import Network
 from congest.pricing import (
@@ -20,6 +20,9 @@ from congest.pricing import (
     price_of_anarchy,
     system_cost,
 )
+
+#: Methods that reach tight gaps (the shared first-best checks run for each).
+PRECISE = [m for m in ("bfw", "gp") if m in METHODS]
 
 
 def pigou(demand=1.0, value_of_time=20.0):
@@ -43,8 +46,9 @@ def braess(with_middle=True):
                    zone_ids=[1, 4], zone_nodes=[0, 3], demand=[[0, 6], [0, 0]])
 
 
-def test_pigou_first_best():
-    fb = first_best(pigou(), tol=1e-12)
+@pytest.mark.parametrize("method", PRECISE)
+def test_pigou_first_best(method):
+    fb = first_best(pigou(), tol=1e-12, tolled_from_so=False, method=method)
     # Pigou (1920): the social optimum splits the unit demand in half
     assert_allclose(fb.so.flow, [0.5, 0.5], atol=1e-6)
     # marginal-cost toll x t'(x) = 1/2 on the variable link, none on the constant one
@@ -82,8 +86,9 @@ def test_price_of_anarchy_uses_total_generalized_cost():
     assert price_of_anarchy(ue2, so2) == pytest.approx(2.0 / 1.75, rel=1e-9)
 
 
-def test_braess_first_best():
-    fb = first_best(braess(), tol=1e-12)
+@pytest.mark.parametrize("method", PRECISE)
+def test_braess_first_best(method):
+    fb = first_best(braess(), tol=1e-12, tolled_from_so=False, method=method)
     without = solve(braess(with_middle=False), tol=1e-12)
     # Braess (1968): the SO of the network with the middle link equals the UE (and SO)
     # without it: 3 trips on each outer route, total cost 498
@@ -113,7 +118,7 @@ def _bpr_identity(net, tol):
 
 def test_bpr_identity_random():
     net = random_network(np.random.default_rng(7), zero_alpha=0.0, n_core=6, n_zones=3)
-    _bpr_identity(net, 1e-9)
+    _bpr_identity(net, 1e-7)
 
 
 @pytest.mark.slow
@@ -149,13 +154,14 @@ def test_system_cost_excludes_added_tolls():
     assert system_cost(fb.tolled_ue, net) == pytest.approx(0.75, rel=1e-6)
 
 
-@settings(max_examples=8, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@pytest.mark.parametrize("method", PRECISE)
+@settings(max_examples=6, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(seed=st.integers(0, 10_000))
-def test_tolled_ue_equals_so_random(seed):
+def test_tolled_ue_equals_so_random(method, seed):
     # Beckmann, McGuire & Winsten (1956): with marginal-cost tolls the UE is the SO;
     # strictly increasing BPR costs (alpha > 0) make the link flows unique
     net = random_network(np.random.default_rng(seed), zero_alpha=0.0, n_core=5, n_zones=3)
-    fb = first_best(net, tol=1e-10)
+    fb = first_best(net, tol=1e-10, tolled_from_so=False, method=method)
     scale = max(1.0, float(fb.so.flow.max()))
     assert fb.max_flow_deviation <= 1e-3 * scale
     assert fb.system_cost_tolled == pytest.approx(fb.system_cost_so, rel=1e-7)
