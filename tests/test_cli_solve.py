@@ -413,3 +413,22 @@ def test_copy_of_demo_city_keeps_its_bytes(tmp_path):
     after = digest(tmp_path / "b")
     after.pop("results.csv")
     assert after == before
+
+
+# ------------------------------------------------------------------ inspect
+def test_inspect_demo_city():
+    res = CliRunner().invoke(main, ["inspect", str(NETWORKS / "quillhaven"), "--json"])
+    assert res.exit_code == 0, res.output
+    info = json.loads(res.stdout)
+    assert info["sizes"] == {"nodes": 145, "links": 518, "zones": 31}
+    assert info["links"]["facility_type"]["old_bridge"] == 2
+    assert info["findings"] == []
+    text = CliRunner().invoke(main, ["inspect", str(NETWORKS / "quillhaven")]).stdout
+    assert "checks: nothing to report" in text and "zones 31" in text
+
+
+def test_inspect_reports_unreachable_pairs(tmp_path):
+    links = "\n".join(line for line in LINKS.splitlines() if not line.startswith("4,")) + "\n"
+    res = CliRunner().invoke(main, ["inspect", str(gmns(tmp_path, links=links))])
+    assert res.exit_code == 1
+    assert "problem: 1 OD pair(s) with trips have no path: 2->1" in res.stdout
