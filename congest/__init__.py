@@ -11,6 +11,7 @@ from .exceptions import (
     NetworkError,
     SolverError,
 )
+from .io import from_networkx, read_gmns, read_network, read_tables, to_networkx, write_gmns
 from .network import Network
 
 __version__ = "0.1.0"
@@ -25,4 +26,10 @@ __all__ = [
     "InputError",
     "SolverError",
     "ConvergenceWarning",
+    "read_network",
+    "read_gmns",
+    "read_tables",
+    "write_gmns",
+    "from_networkx",
+    "to_networkx",
 ]
