@@ -88,41 +88,64 @@ def dijkstra(origin, indptr, adj_link, adj_head, cost, blocked, dist, pred, orde
     return n_settled
 
 
-@numba.njit(cache=True, parallel=True)
-def _aon_all(origins, zone_nodes, demand, indptr, adj_link, adj_head, tail, cost, blocked,
-             n_chunks):
+@numba.njit(cache=True)
+def _aon_origins(first, step, origins, zone_nodes, demand, indptr, adj_link, adj_head, tail,
+                 cost, blocked, flow, od_cost):
+    # Trees and loading for origins[first::step], adding into flow and od_cost rows.
     n_nodes = indptr.size - 1
     n_links = tail.size
     n_zones = zone_nodes.size
-    flows = np.zeros((n_chunks, n_links))
-    od_cost = np.full((n_zones, n_zones), np.nan)
+    dist = np.empty(n_nodes)
+    pred = np.empty(n_nodes, dtype=np.int64)
+    order = np.empty(n_nodes, dtype=np.int64)
+    acc = np.zeros(n_nodes)
+    heap_key = np.empty(n_links + 1)
+    heap_node = np.empty(n_links + 1, dtype=np.int64)
+    for j in range(first, origins.size, step):
+        oz = origins[j]
+        settled = dijkstra(zone_nodes[oz], indptr, adj_link, adj_head, cost, blocked,
+                           dist, pred, order, heap_key, heap_node)
+        for dz in range(n_zones):
+            od_cost[oz, dz] = dist[zone_nodes[dz]]
+            acc[zone_nodes[dz]] += demand[oz, dz]
+        for k in range(settled - 1, 0, -1):
+            u = order[k]
+            a = acc[u]
+            if a != 0.0:
+                link = pred[u]
+                flow[link] += a
+                acc[tail[link]] += a
+                acc[u] = 0.0
+        for dz in range(n_zones):
+            acc[zone_nodes[dz]] = 0.0  # origin and unreachable destinations
+        od_cost[oz, oz] = 0.0
+
+
+@numba.njit(cache=True, parallel=True)
+def _aon_all(origins, zone_nodes, demand, indptr, adj_link, adj_head, tail, cost, blocked,
+             n_chunks):
+    flows = np.zeros((n_chunks, tail.size))
+    od_cost = np.full((zone_nodes.size, zone_nodes.size), np.nan)
     for c in numba.prange(n_chunks):
-        dist = np.empty(n_nodes)
-        pred = np.empty(n_nodes, dtype=np.int64)
-        order = np.empty(n_nodes, dtype=np.int64)
-        acc = np.zeros(n_nodes)
-        heap_key = np.empty(n_links + 1)
-        heap_node = np.empty(n_links + 1, dtype=np.int64)
-        flow = flows[c]
-        for j in range(c, origins.size, n_chunks):
-            oz = origins[j]
-            settled = dijkstra(zone_nodes[oz], indptr, adj_link, adj_head, cost, blocked,
-                               dist, pred, order, heap_key, heap_node)
-            for dz in range(n_zones):
-                od_cost[oz, dz] = dist[zone_nodes[dz]]
-                acc[zone_nodes[dz]] += demand[oz, dz]
-            for k in range(settled - 1, 0, -1):
-                u = order[k]
-                a = acc[u]
-                if a != 0.0:
-                    link = pred[u]
-                    flow[link] += a
-                    acc[tail[link]] += a
-                    acc[u] = 0.0
-            for dz in range(n_zones):
-                acc[zone_nodes[dz]] = 0.0  # origin and unreachable destinations
-            od_cost[oz, oz] = 0.0
+        _aon_origins(c, n_chunks, origins, zone_nodes, demand, indptr, adj_link, adj_head,
+                     tail, cost, blocked, flows[c], od_cost)
     return flows, od_cost
+
+
+@numba.njit(cache=True)
+def _aon_serial(origins, zone_nodes, demand, indptr, adj_link, adj_head, tail, cost,
+                blocked):
+    flows = np.zeros((1, tail.size))
+    od_cost = np.full((zone_nodes.size, zone_nodes.size), np.nan)
+    _aon_origins(0, 1, origins, zone_nodes, demand, indptr, adj_link, adj_head, tail, cost,
+                 blocked, flows[0], od_cost)
+    return flows, od_cost
+
+
+#: Below this many (origins x links) one all-or-nothing pass runs on one thread: the
+#: thread-pool hand-off costs more than it saves on small networks, and far more when
+#: the machine is busy.
+PARALLEL_MIN_WORK = 50_000
 
 
 class ShortestPaths:
@@ -181,9 +204,12 @@ class ShortestPaths:
         demand = self.network.demand if demand is None else np.asarray(demand, np.float64)
         cost = np.ascontiguousarray(cost, dtype=np.float64)
         n_chunks = max(1, min(numba.get_num_threads(), self.origins.size))
-        flows, od_cost = _aon_all(self.origins, self.zone_nodes, np.ascontiguousarray(demand),
-                                  self.indptr, self.adj_link, self.adj_head, self.tail, cost,
-                                  self.blocked, n_chunks)
+        args = (self.origins, self.zone_nodes, np.ascontiguousarray(demand), self.indptr,
+                self.adj_link, self.adj_head, self.tail, cost, self.blocked)
+        if n_chunks == 1 or self.origins.size * self.tail.size < PARALLEL_MIN_WORK:
+            flows, od_cost = _aon_serial(*args)
+        else:
+            flows, od_cost = _aon_all(*args, n_chunks)
         return flows.sum(axis=0), od_cost
 
     def tree(self, origin_node, cost):
