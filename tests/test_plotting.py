@@ -354,6 +354,25 @@ def test_learning_chart_median_and_band():
     assert "5 replication(s)" in text(fig, "congest-subtitle")
 
 
+def test_learning_chart_reads_a_simulation():
+    from congest.learning import simulate
+
+    # Pigou's two roads (Pigou 1920) under Hedge with a decreasing rate
+    pigou = Network(node_ids=[1, 2], tail=[0, 0], head=[1, 1], capacity=1.0,
+                    free_flow_time=[1.0, 0.0], alpha=[0.0, 1.0], beta=[0.0, 1.0],
+                    cost_kind=2, zone_ids=[1, 2], zone_nodes=[0, 1],
+                    demand=[[0, 1], [0, 0]])
+    res = simulate(pigou, days=40, replications=3, seed=0, track=[(1, 2)],
+                   estimate_noise=0.1)
+    fig = learning_chart(res)
+    ax_tt, _, ax_sh = fig.axes
+    median = res.days.groupby("day")["total_travel_time"].median() / 60.0
+    np.testing.assert_allclose(ax_tt.get_lines()[0].get_ydata(), median.to_numpy())
+    assert sorted(ln.get_label() for ln in ax_sh.get_lines()) == ["route 1", "route 2"]
+    for ln in ax_sh.get_lines():
+        assert np.all((ln.get_ydata() >= 0) & (ln.get_ydata() <= 1))
+
+
 def test_scenario_chart_bars_indexed_to_the_baseline():
     table = pd.DataFrame({"scenario": ["UE", "SO", "tolled UE"],
                           "vehicle_hours": [1200.0, 1000.0, 1010.0],
@@ -368,6 +387,31 @@ def test_scenario_chart_bars_indexed_to_the_baseline():
     np.testing.assert_allclose([r.get_height() for r in bars["UE"]], 100.0)
     with pytest.raises(ValueError, match="baseline"):
         scenario_chart(table, baseline="nope")
+    # an extreme scenario is cut at the cap, its value still written on the bar
+    wild = pd.concat([table, pd.DataFrame({"scenario": ["advice"], "vehicle_hours": [6000.0],
+                                           "mean_trip_time_min": [60.0],
+                                           "max_volume_capacity": [5.0]})])
+    ax = scenario_chart(wild, cap=250.0).axes[0]
+    advice = next(c for c in ax.containers if c.get_label() == "advice")
+    np.testing.assert_allclose([r.get_height() for r in advice], 250.0)
+    assert "6,000 (500%)" in {t.get_text() for t in ax.texts}
+
+
+def test_scenario_chart_reads_the_compare_table():
+    from congest.scenarios import compare
+
+    # Pigou (Pigou 1920): SO and marginal-cost tolls cost 3/4 of UE (Roughgarden &
+    # Tardos 2002: price of anarchy 4/3)
+    pigou = Network(node_ids=[1, 2], tail=[0, 0], head=[1, 1], capacity=1.0,
+                    free_flow_time=[1.0, 0.0], alpha=[0.0, 1.0], beta=[0.0, 1.0],
+                    cost_kind=2, zone_ids=[1, 2], zone_nodes=[0, 1],
+                    demand=[[0, 1], [0, 0]])
+    table = compare(pigou, tol=1e-10).table
+    ax = scenario_chart(table, metrics=["system_cost_hours"]).axes[0]
+    bars = {c.get_label(): c[0].get_height() for c in ax.containers}
+    assert set(bars) == set(table["label"])
+    np.testing.assert_allclose(bars["user equilibrium"], 100.0)
+    np.testing.assert_allclose(bars["system optimum"], 75.0, rtol=1e-6)
 
 
 # ------------------------------------------------------------------- output

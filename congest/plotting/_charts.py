@@ -203,35 +203,56 @@ def sweep_chart(table, *, currency="money", title="Demand sweep", figsize=(9.0, 
 # ---------------------------------------------------------------------- learning
 def _spread(ax, frame, x, column, color, label):
     """Median line and 10-90% band over replications (a plain line for one run)."""
+    frame = frame[np.isfinite(frame[column].to_numpy(dtype=float))]
     if "replication" in frame and frame["replication"].nunique() > 1:
         grouped = frame.groupby(x)[column]
         mid = grouped.median()
         lo, hi = grouped.quantile(0.1), grouped.quantile(0.9)
         ax.fill_between(mid.index, lo.to_numpy(), hi.to_numpy(), color=color, alpha=0.18,
                         lw=0)
-        ax.plot(mid.index, mid.to_numpy(), color=color, lw=1.6,
-                label=f"{label} (median, 10-90% band)")
+        ax.plot(mid.index, mid.to_numpy(), color=color, lw=1.6, label=label)
         return frame["replication"].nunique()
     ax.plot(frame[x], frame[column], color=color, lw=1.4, label=label)
     return 1
 
 
+def _route_labels(shares):
+    """One label per route: "route 1" (numbers from 0 shown from 1) or the route's own
+    name, prefixed by "origin→destination" when several OD pairs are tracked."""
+    shares = shares.copy()
+    import pandas as pd
+
+    route = shares["route"]
+    name = ("route " + (route + 1).astype(str) if pd.api.types.is_integer_dtype(route)
+            else route.astype(str))
+    if {"origin", "destination"} <= set(shares) and \
+            shares[["origin", "destination"]].drop_duplicates().shape[0] > 1:
+        name = (shares["origin"].astype(str) + "\u2192" + shares["destination"].astype(str)
+                + " " + name)
+    shares["label"] = name
+    return shares
+
+
 def learning_chart(days, *, ue_total=None, route_shares=None, title="Day-to-day learning",
-                   figsize=(10.0, 8.5)):
+                   max_routes=8, figsize=(10.0, 8.5)):
     """Total travel time, relative gap and route shares day by day.
 
     Parameters
     ----------
-    days : pandas.DataFrame
-        One row per day (and replication): ``day``, ``total_travel_time``
-        (vehicle-minutes) and ``relative_gap``; optional ``replication`` for the spread
-        across replications (median and 10-90% band).
+    days : LearningResult or pandas.DataFrame
+        A :class:`congest.learning.LearningResult` (its ``days`` and ``route_shares``
+        are used), or one row per day (and replication): ``day``,
+        ``total_travel_time`` (vehicle-minutes) and ``relative_gap``; with a
+        ``replication`` column the spread across replications is drawn as the median
+        and a 10-90% band.
     ue_total : float, optional
-        Total travel time at user equilibrium, drawn as a reference line.
+        Total travel time at user equilibrium (vehicle-minutes), a reference line.
     route_shares : pandas.DataFrame, optional
-        Columns ``day``, ``route`` (label) and ``share`` (0..1), optional
-        ``replication``; one line per route.
+        Columns ``day``, ``route`` and ``share`` (0..1), optional ``replication``,
+        ``origin``, ``destination``; one line per route.
     title : str, default "Day-to-day learning"
+    max_routes : int, default 8
+        Route-share lines drawn at most (the routes with the largest mean share).
     figsize : (float, float), default (10, 8.5)
 
     Returns
@@ -239,6 +260,10 @@ def learning_chart(days, *, ue_total=None, route_shares=None, title="Day-to-day 
     matplotlib.figure.Figure
         Two or three stacked axes sharing the day axis.
     """
+    if hasattr(days, "days") and hasattr(days, "summary"):
+        if route_shares is None:
+            route_shares = days.route_shares
+        days = days.days
     for col in ("day", "total_travel_time", "relative_gap"):
         if col not in days:
             raise ValueError(f"learning table needs a {col!r} column")
@@ -246,7 +271,9 @@ def learning_chart(days, *, ue_total=None, route_shares=None, title="Day-to-day 
     fig, axes = _new_figure(figsize, n_rows=n_rows, sharex=True)
     frame = days.copy()
     frame["vehicle_hours"] = frame["total_travel_time"] / 60.0
-    n_rep = _spread(axes[0], frame, "day", "vehicle_hours", PALETTE[0], "simulated")
+    n_rep = _spread(axes[0], frame, "day", "vehicle_hours", PALETTE[0],
+                    "simulated" + (" (median, 10-90% band)" if "replication" in frame
+                                   and frame["replication"].nunique() > 1 else ""))
     if ue_total is not None:
         axes[0].axhline(ue_total / 60.0, color=PALETTE[1], lw=1.0, ls=(0, (4, 3)),
                         label="user equilibrium")
@@ -257,18 +284,21 @@ def learning_chart(days, *, ue_total=None, route_shares=None, title="Day-to-day 
     axes[1].set_yscale("log")
     _label(axes[1], "", "Relative gap of the\nday's flows (log)")
     if n_rows == 3:
-        shares = route_shares.copy()
-        for k, (route, grp) in enumerate(shares.groupby("route", sort=True)):
-            _spread(axes[2], grp, "day", "share", PALETTE[k % len(PALETTE)], str(route))
+        shares = _route_labels(route_shares)
+        keep = (shares.groupby("label")["share"].mean().sort_values(ascending=False)
+                .index[:max_routes])
+        for k, label in enumerate(sorted(keep)):
+            _spread(axes[2], shares[shares["label"] == label], "day", "share",
+                    PALETTE[k % len(PALETTE)], label)
         axes[2].set_ylim(-0.02, 1.02)
-        axes[2].legend(fontsize=7.5, frameon=False, loc="upper right",
-                       ncol=min(3, shares["route"].nunique()))
-        _label(axes[2], "", "Route share")
+        axes[2].legend(fontsize=7.5, frameon=False, loc="best", ncol=min(4, len(keep)))
+        _label(axes[2], "", "Route share of\nthe OD pair's trips")
     _label(axes[-1], "Day", axes[-1].get_ylabel())
     last = frame[frame["day"] == frame["day"].max()]
+    final = float(np.nanmedian(last["relative_gap"])) if last["relative_gap"].notna().any() \
+        else float("nan")
     sub = (f"{int(frame['day'].max())} days  ·  {n_rep} replication(s)  ·  final relative "
-           f"gap {float(np.nanmedian(last['relative_gap'])):.1e}"
-           + (" (median)" if n_rep > 1 else ""))
+           f"gap {final:.1e}" + (" (median)" if n_rep > 1 else ""))
     _titles(fig, title, sub, top=0.88)
     fig.subplots_adjust(left=0.12, right=0.97, bottom=0.07, hspace=0.12)
     return fig
@@ -278,15 +308,19 @@ def learning_chart(days, *, ue_total=None, route_shares=None, title="Day-to-day 
 #: Comparison columns drawn by :func:`scenario_chart` by default, with their labels.
 SCENARIO_METRICS = {
     "vehicle_hours": "Vehicle-hours",
-    "mean_trip_time_min": "Mean trip time",
+    "mean_trip_time_min": "Mean trip time, min",
     "vehicle_distance": "Vehicle-distance",
-    "max_volume_capacity": "Max volume/capacity",
+    "system_cost_hours": "System cost, veh-h",
+    "max_volume_capacity": "Highest volume/capacity",
     "links_over_capacity": "Links over capacity",
 }
 
+#: Bars taller than this percentage of the baseline are cut at it (value still written).
+SCENARIO_CAP = 250.0
+
 
 def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
-                   title="Scenarios compared", figsize=(11.0, 5.6)):
+                   title="Scenarios compared", cap=SCENARIO_CAP, figsize=(11.0, 5.8)):
     """Grouped bar chart of a scenario comparison table, indexed to a baseline.
 
     Each group is one measure; each bar one scenario, its height the measure as a
@@ -296,17 +330,20 @@ def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
     Parameters
     ----------
     table : pandas.DataFrame
-        One row per scenario, e.g. ``congest.scenarios.compare(...).table``; the
-        scenario names are the index or the ``scenario_column``.
+        One row per scenario, e.g. ``congest.scenarios.compare(...).table``. Scenario
+        names come from a ``label`` column if present, else ``scenario_column``, else
+        the index.
     metrics : mapping of column to label, or sequence of column names, optional
         Default: those of :data:`SCENARIO_METRICS` present in the table.
     baseline : str, optional
-        Scenario = 100 (default: the one named like user equilibrium, else the first).
+        Scenario = 100 (default: user equilibrium if present, else the first row).
     scenario_column : str, optional
-        Column holding scenario names (default: ``"scenario"`` if present, else the
-        index).
+        Column holding scenario names.
     title : str, default "Scenarios compared"
-    figsize : (float, float), default (11, 5.6)
+    cap : float, default 250
+        Bars above ``cap`` percent are cut at it and marked with a notch (their value is
+        still written), so one extreme scenario does not flatten the others.
+    figsize : (float, float), default (11, 5.8)
 
     Returns
     -------
@@ -314,13 +351,20 @@ def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
         One BarContainer per scenario, labelled with the scenario's name.
     """
     frame = table.copy()
-    if scenario_column is None and "scenario" in frame:
-        scenario_column = "scenario"
+    if scenario_column is None:
+        scenario_column = next((c for c in ("label", "scenario") if c in frame), None)
+    keys = [str(i) for i in frame.index]
     if scenario_column is not None:
         frame = frame.set_index(scenario_column)
     frame.index = [str(i) for i in frame.index]
     if metrics is None:
         metrics = {c: lbl for c, lbl in SCENARIO_METRICS.items() if c in frame}
+        unit = getattr(table, "attrs", {}).get("length_unit")
+        if "vehicle_distance" in metrics:
+            if frame["vehicle_distance"].astype(float).isna().all():
+                del metrics["vehicle_distance"]
+            elif unit:
+                metrics["vehicle_distance"] = f"Vehicle-{unit}"
     elif not isinstance(metrics, dict):
         metrics = {c: SCENARIO_METRICS.get(c, c.replace("_", " ")) for c in metrics}
     missing = [c for c in metrics if c not in frame]
@@ -330,8 +374,11 @@ def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
         raise ValueError("no measure to draw: pass metrics=")
     names = list(frame.index)
     if baseline is None:
-        baseline = next((n for n in names if n.lower() in ("ue", "user equilibrium")),
-                        names[0])
+        ue_like = [n for n, k in zip(names, keys, strict=True)
+                   if n.lower() in ("ue", "user equilibrium") or k == "user_equilibrium"]
+        baseline = ue_like[0] if ue_like else names[0]
+    elif baseline not in names and baseline in keys:
+        baseline = names[keys.index(baseline)]
     if baseline not in names:
         raise ValueError(f"baseline {baseline!r} is not a scenario; choose from {names}")
     values = frame[list(metrics)].apply(lambda c: c.astype(float))
@@ -342,23 +389,36 @@ def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
     n_s, n_m = len(names), len(metrics)
     width = 0.8 / n_s
     centers = np.arange(n_m)
-    tall = float(np.nanmax(index.to_numpy())) if np.isfinite(index.to_numpy()).any() else 100
+    finite = index.to_numpy()[np.isfinite(index.to_numpy())]
+    tall = min(float(finite.max()) if finite.size else 100.0, cap)
     for k, name in enumerate(names):
         pos = centers - 0.4 + width * (k + 0.5)
         heights = index.loc[name].to_numpy(float)
-        bars = ax.bar(pos, np.nan_to_num(heights), width * 0.92, label=name,
+        shown = np.minimum(np.nan_to_num(heights), cap)
+        bars = ax.bar(pos, shown, width * 0.92, label=name,
                       color=PALETTE[k % len(PALETTE)], zorder=2)
-        if n_s * n_m <= 48:
-            for rect, val, h in zip(bars, values.loc[name].to_numpy(float), heights, strict=True):
-                ax.text(rect.get_x() + rect.get_width() / 2, (0 if not math.isfinite(h)
-                        else h) + tall * 0.01, _fmt(val) if math.isfinite(val) else "n/a",
-                        ha="center", va="bottom", fontsize=6.5, color=_INK, rotation=90)
+        for rect, val, h in zip(bars, values.loc[name].to_numpy(float), heights,
+                                strict=True):
+            x_mid = rect.get_x() + rect.get_width() / 2
+            if math.isfinite(h) and h > cap:  # a notch: the bar goes on beyond the axis
+                ax.plot([rect.get_x(), rect.get_x() + rect.get_width()],
+                        [cap * 0.96, cap * 0.985], color="white", lw=2.2, zorder=3)
+            if n_s * n_m <= 60:
+                label = _fmt(val) if math.isfinite(val) else "n/a"
+                if math.isfinite(h) and h > cap:
+                    label += f" ({h:.0f}%)"
+                top = min(h, cap) if math.isfinite(h) else 0.0
+                ax.text(x_mid, top + tall * 0.01, label, ha="center", va="bottom",
+                        fontsize=6.5, color=_INK, rotation=90, zorder=4)
     ax.axhline(100.0, color=_MUTED, lw=0.9, ls=(0, (4, 3)), zorder=3)
-    ax.set_xticks(centers, list(metrics.values()), fontsize=8.5)
-    ax.set_ylim(0, tall * 1.22)
+    import textwrap
+
+    ax.set_xticks(centers, [textwrap.fill(lbl, 16) for lbl in metrics.values()],
+                  fontsize=8.5)
+    ax.set_ylim(0, tall * 1.3)
     _label(ax, "", f"Percent of {baseline} (= 100)")
     ax.legend(fontsize=8, frameon=False, loc="upper left", bbox_to_anchor=(1.0, 1.0))
-    _titles(fig, title, f"{n_s} scenarios  ·  bars indexed to {baseline}; values written "
-            "on the bars in the table's units")
-    fig.subplots_adjust(left=0.07, right=0.80, bottom=0.1)
+    _titles(fig, title, f"{n_s} scenarios  ·  bars as a percentage of {baseline}; the "
+            "value in the table's units is written on each bar")
+    fig.subplots_adjust(left=0.07, right=0.78, bottom=0.1)
     return fig
