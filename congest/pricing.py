@@ -62,7 +62,7 @@ __all__ = [
 ]
 
 #: Search methods of :func:`second_best`.
-SECOND_BEST_METHODS = ("auto", "bounded", "powell", "nelder-mead")
+SECOND_BEST_METHODS = ("auto", "bounded", "powell", "nelder-mead", "l-bfgs-b")
 
 #: Tolls below this many minutes count as "no toll" when listing tolled links.
 TOLL_EPS_MIN = 1e-9
@@ -560,7 +560,7 @@ def _groups_of(net, links):
 
 def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="auto",
                 xtol=1e-4, max_evals=200, solver_max_iter=None, first_best_result=None,
-                callback=None) -> SecondBest:
+                warm=True, callback=None) -> SecondBest:
     """Tolls on a chosen set of links that minimise system cost under UE response.
 
     Parameters
@@ -578,9 +578,11 @@ def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="aut
         cost to be a smooth function of the tolls, so solve tightly.
     method : str, default "auto"
         Equilibrium method (see :func:`congest.solve`).
-    search : {"auto", "bounded", "powell", "nelder-mead"}, default "auto"
-        Derivative-free search: Brent's bounded method for one group, Powell's method
-        with bounds for several.
+    search : {"auto", "bounded", "powell", "nelder-mead", "l-bfgs-b"}, default "auto"
+        ``"auto"`` is Brent's bounded method for one group and Powell's method with
+        bounds for several (both derivative-free). ``"l-bfgs-b"`` is the bounded
+        quasi-Newton method on forward-difference gradients (one extra solve per group
+        and gradient, step ``xtol``): it needs the tight gaps of a precise solver.
     xtol : float, default 1e-4
         Toll tolerance of the search, minutes.
     max_evals : int, default 200
@@ -590,6 +592,9 @@ def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="aut
         Iteration cap of each equilibrium solve.
     first_best_result : FirstBest, optional
         First-best result of the same network (else computed).
+    warm : bool, default True
+        Warm-start each solve from the previous one (False: every solve from scratch;
+        for timing comparisons).
     callback : callable, optional
         ``callback(tolls_minutes, system_cost)`` after each evaluation; return True to
         stop the search.
@@ -652,7 +657,7 @@ def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="aut
         if len(cache) >= max_evals or state["stop"]:
             return state["best"][0]
         eq = _warm_solve(net.with_tolls(expand @ tolls), objective="ue",
-                         warm_start=state["warm"], **kw)
+                         warm_start=state["warm"] if warm else None, **kw)
         state["warm"] = eq
         value = system_cost(eq, net)
         cache[key] = value
@@ -679,9 +684,15 @@ def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="aut
     else:
         x0 = np.clip(np.array([fb.tolls_minutes[idx].mean() for idx in groups]),
                      lo_hi[:, 0], lo_hi[:, 1])
-        name = "Powell" if search == "powell" else "Nelder-Mead"
-        opts = {"xtol": xtol, "maxfev": max_evals} if name == "Powell" else {
-            "xatol": xtol, "fatol": 1e-9 * max(1.0, fb.system_cost_ue), "maxfev": max_evals}
+        scale = max(1.0, fb.system_cost_ue)
+        if search == "powell":
+            name, opts = "Powell", {"xtol": xtol, "maxfev": max_evals}
+        elif search == "nelder-mead":
+            name, opts = "Nelder-Mead", {"xatol": xtol, "fatol": 1e-9 * scale,
+                                         "maxfev": max_evals}
+        else:
+            name, opts = "L-BFGS-B", {"eps": xtol, "maxfun": max_evals, "ftol": 1e-12,
+                                      "gtol": 1e-9 * scale}
         res = minimize(evaluate, x0, method=name, bounds=lo_hi, options=opts)
         ok, msg = bool(res.success), str(res.message)
     value, best_tolls, eq = state["best"]

@@ -68,6 +68,9 @@ def test_one_toll_cannot_reach_so_on_three_routes():
 
     sb = second_best(net, [1], tol=TOL, first_best_result=fb)
     assert 0.0 < sb.share_of_first_best < 1.0
+    # every solve from scratch: the same answer
+    cold = second_best(net, [1], tol=TOL, first_best_result=fb, warm=False)
+    assert cold.tolls_minutes[0] == pytest.approx(sb.tolls_minutes[0], abs=1e-3)
 
     # fine grid over the toll with the hand-solved UE
     grid = np.linspace(0.0, 4.0, 40_001)
@@ -95,6 +98,11 @@ def test_two_tolls_reach_so_on_three_routes():
     nm = second_best(net, [1, 2], tol=TOL, search="nelder-mead", xtol=1e-6,
                      first_best_result=sb.first_best)
     assert nm.share_of_first_best == pytest.approx(1.0, abs=1e-4)
+    # quasi-Newton on finite-difference gradients (the objective is smooth here)
+    qn = second_best(net, [1, 2], tol=TOL, search="l-bfgs-b", xtol=1e-6,
+                     first_best_result=sb.first_best)
+    assert qn.share_of_first_best == pytest.approx(1.0, abs=1e-4)
+    assert_allclose(qn.tolls_minutes, [1.0, 0.5], atol=2e-2)
 
 
 def test_group_shares_one_toll():

@@ -74,10 +74,12 @@ def parse_groups(net, on_links, on_attribute):
               metavar="MONEY",
               help="Second best: highest toll searched, money per vehicle. Default: twice "
                    "the largest first-best toll.")
-@click.option("--search", type=click.Choice(["auto", "bounded", "powell", "nelder-mead"]),
+@click.option("--search",
+              type=click.Choice(["auto", "bounded", "powell", "nelder-mead", "l-bfgs-b"]),
               default="auto", show_default=True,
               help="Second best: search over toll levels (auto: bounded scalar search "
-                   "for one group, Powell for several).")
+                   "for one group, Powell for several; l-bfgs-b: quasi-Newton on "
+                   "finite-difference gradients, for tight gaps).")
 @click.option("--max-evals", type=click.IntRange(min=2), default=200, show_default=True,
               help="Second best: cap on equilibrium solves.")
 @click.option("--out", "out", type=click.Path(dir_okay=False), default=None,
