@@ -110,8 +110,7 @@ def _refresh_costs(x, kind, par, so, cost, deriv):
         _update_link(l, x, kind, par, so, cost, deriv)
 
 
-@numba.njit(cache=True, parallel=True)
-def _trees(origin_nodes, zone_nodes, indptr, adj_link, adj_head, cost, blocked, pred, zdist,
+def _trees_impl(origin_nodes, zone_nodes, indptr, adj_link, adj_head, cost, blocked, pred, zdist,
            n_chunks):
     """Shortest-path trees from every origin: predecessor links and zone distances."""
     n_nodes = indptr.size - 1
@@ -131,11 +130,17 @@ def _trees(origin_nodes, zone_nodes, indptr, adj_link, adj_head, cost, blocked, 
                 zdist[j, z] = dist[zone_nodes[z]]
 
 
-@numba.njit(cache=True, parallel=True)
+# Parallel regions cost a thread hand-over each; small networks run the serial twin.
+_trees_parallel = numba.njit(cache=True, parallel=True)(_trees_impl)
+_trees_serial = numba.njit(cache=True)(_trees_impl)
+_PARALLEL_WORK = 200_000  # origins x links above which the trees run in parallel
+
+
+@numba.njit(cache=True)
 def _needs_route(od_row, od_d, zdist, cost, od_first, p_start, p_len, p_next, pool, rel_tol,
                  need):
     """Flag the OD pairs whose tree route is cheaper than all their routes."""
-    for od in numba.prange(od_first.size):
+    for od in range(od_first.size):
         p = od_first[od]
         best = np.inf
         while p >= 0:
@@ -629,6 +634,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     # a tree route joins only if cheaper than the OD's routes by more than rounding
     route_tol = min(1e-13, 0.1 * tol)
     n_chunks = max(1, min(numba.get_num_threads(), origins.size))
+    trees = _trees_parallel if origins.size * n_links > _PARALLEL_WORK else _trees_serial
     converged = False
     message = ""
     k = 0
@@ -636,7 +642,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
                    pool.links, x)
         _refresh_costs(x, kind, par, so, cost, deriv)
-        _trees(origin_nodes, sp.zone_nodes, sp.indptr, sp.adj_link, sp.adj_head, cost,
+        trees(origin_nodes, sp.zone_nodes, sp.indptr, sp.adj_link, sp.adj_head, cost,
                sp.blocked, pred, zdist, n_chunks)
         od_dist = zdist[od_row, od_d]
         if k == 0 and not np.isfinite(od_dist).all():
