@@ -55,7 +55,7 @@ def test_three_bridges_cross_the_river(city):
                                                   strict=True)}
     assert len(roads) == 3
     names = set(city.link_attrs["name"][crossing])
-    assert names == {"Old Bridge", "Ring bridge"}
+    assert names == {"Old Bridge", "West Ring Bridge", "East Ring Bridge"}
 
 
 def test_ring_road_is_a_cycle(city):

@@ -35,6 +35,12 @@ OUT = Path(__file__).resolve().parents[1] / "quillhaven"
 #: Street-grid positions in metres: closer together near the centre.
 XS = [-3600, -2500, -1600, -1000, -500, 0, 500, 1000, 1600, 2500, 3600]
 YS = [-3300, -2300, -1500, -900, -350, 350, 900, 1500, 2300, 3300]
+#: Invented street names: east-west rows from south to north, north-south columns west to east.
+ROW_NAMES = ["Heath Road", "Marsh Road", "Furnace Row", "Wharf Street", "South Riverside",
+             "North Riverside", "Guild Street", "Abbey Street", "Beacon Road", "Hill Road"]
+COLUMN_NAMES = ["Quarry Street", "Orchard Street", "Tanner Street", "Weaver Street",
+                "Chandler Street", "Sable Avenue", "Cooper Street", "Mason Street",
+                "Fletcher Street", "Thatcher Street", "Kiln Street"]
 RIVER_Y = 0.0  # the Sable runs along y = 0 between the rows at -350 and 350
 CITY_RADIUS = 3900.0  # grid nodes further out are fields, not streets
 RING_RADIUS = 3500.0
@@ -97,7 +103,7 @@ def build(peak_trips=PEAK_TRIPS, seed=SEED) -> Network:
         gx, gy = XS[c], YS[r]
         if (r, c + 1) in grid:  # east-west street
             kind = "arterial" if gy in arterial_y else "street"
-            label = "Riverside" if abs(gy) == 350 else f"Row {r + 1}"
+            label = ROW_NAMES[r]
             road(n, grid[r, c + 1], kind, label)
         if (r + 1, c) in grid:  # north-south street
             crosses = (YS[r] < RIVER_Y) != (YS[r + 1] < RIVER_Y)
@@ -107,12 +113,14 @@ def build(peak_trips=PEAK_TRIPS, seed=SEED) -> Network:
                 road(n, grid[r + 1, c], "old_bridge", "Old Bridge")
             else:
                 kind = "arterial" if gx in arterial_x else "street"
-                road(n, grid[r + 1, c], kind, "Sable Avenue" if gx == 0 else f"Col {c + 1}")
+                road(n, grid[r + 1, c], kind, COLUMN_NAMES[c])
 
     for k in range(RING_NODES):
         a, b = ring[k], ring[(k + 1) % RING_NODES]
         ya, yb = pos[a][1], pos[b][1]
-        label = "Ring bridge" if (ya < RIVER_Y) != (yb < RIVER_Y) else "Ring"
+        label = "Ring Road"
+        if (ya < RIVER_Y) != (yb < RIVER_Y):
+            label = "West Ring Bridge" if pos[a][0] < 0 else "East Ring Bridge"
         road(a, b, "ring", label)
         # radial to the nearest grid node on the city's edge
         rx, ry = pos[a]
