@@ -319,8 +319,11 @@ class LearningResult:
         day's flows against shortest paths in the whole network, nominal costs; NaN on
         days skipped by ``gap_every``), ``route_set_gap`` (the same against the
         cheapest route of each set), ``distance_to_ue`` (``||x - x_ue|| / ||x_ue||``),
-        ``mean_regret`` and ``max_regret`` (per-driver regret divided by the number of
-        days so far, minutes per trip; mean weighted by trips, max over driver groups),
+        ``mean_regret`` and ``max_regret`` (regret of the learning drivers: cumulative
+        cost minus that of the best single route of the set in hindsight, divided by the
+        number of days so far, minutes per trip; mean weighted by trips, max over
+        drivers, or over OD pairs in the continuum), ``advice_regret`` (the same for
+        advice followers, mean; NaN without followers),
         ``switching_share`` (share of trips on another route than the day before).
     route_shares : pandas.DataFrame or None
         For the tracked OD pairs: ``day, replication, origin, destination, route, share``.
@@ -391,7 +394,7 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
              cost_scale="ue", information="full", advice_share=0.0, supply_noise=0.0,
              estimate_noise=0.0, drivers=None, initial="uniform", route_set=None, k=3,
              max_routes=None, equilibrium=None, ue_tol=1e-4, replications=1, seed=None,
-             track=(), gap_every=1, gap_target=1e-3) -> LearningResult:
+             track=(), gap_every=1, gap_target=1e-3, workers=None) -> LearningResult:
     """Simulate day-to-day route choice learning on ``network``.
 
     Parameters
@@ -441,7 +444,11 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
     gap_every : int, default 1
         Compute the whole-network relative gap every this many days (and on the last).
     gap_target : float, default 1e-3
-        Gap for ``days_to_gap`` in the summary.
+        Gap for ``days_to_gap`` and the oscillation flag in the summary.
+    workers : int, optional
+        Threads for the compiled kernels. Default: all of numba's threads when a day's
+        work is large enough to pay for waking them (many replications or a large
+        network), else one.
 
     Returns
     -------
@@ -471,6 +478,18 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
     >>> bool(res.summary["average_gap"].iloc[0] < 1e-3)
     True
     """
+    options = dict(locals())
+    previous = numba.get_num_threads()
+    try:
+        return _simulate(**options)
+    finally:
+        numba.set_num_threads(previous)
+
+
+def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, information,
+              advice_share, supply_noise, estimate_noise, drivers, initial, route_set, k,
+              max_routes, equilibrium, ue_tol, replications, seed, track, gap_every,
+              gap_target, workers):
     import pandas as pd
 
     from .equilibrium import relative_gap, solve
@@ -619,14 +638,15 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
     est_mu, est_sigma = _lognormal_params(estimate_noise)
 
     demand = np.ascontiguousarray(network.demand)
-    n_chunks = max(1, min(numba.get_num_threads() * 4, R * sp.origins.size))
+    previous_threads = numba.get_num_threads()
+    n_chunks = max(1, min(numba.config.NUMBA_NUM_THREADS * 4, R * sp.origins.size))
     ue_norm = float(np.linalg.norm(ue_flow)) or 1.0
     window, max_lag = max(2, min(20, days // 4)), 10
     hist = np.zeros((window + max_lag, R, network.n_links))
 
     rec = {name: np.full((days, R), np.nan) for name in (
         "total_travel_time", "total_cost", "relative_gap", "route_set_gap",
-        "distance_to_ue", "mean_regret", "max_regret", "switching_share")}
+        "distance_to_ue", "mean_regret", "max_regret", "advice_regret", "switching_share")}
     tracked = [rs.od_index(o, d) for o, d in track]
     shares_rec = [np.zeros((days, R, n_per_od[i])) for i in tracked]
     sum_x = np.zeros_like(x)
@@ -638,6 +658,10 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
     g_sched = SCHEDULES[schedule]
     experience = information == "experience"
 
+    if workers is None:
+        work = R * (r_lidx.size + n_agents * width + sp.origins.size * network.n_links)
+        workers = previous_threads if work > 200_000 else 1
+    numba.set_num_threads(max(1, min(int(workers), numba.config.NUMBA_NUM_THREADS)))
     for t in range(days):
         if supply_noise > 0:
             for r, g in enumerate(rngs):
@@ -685,18 +709,25 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
                agent_od, od_ptr, route_cum, own_cum, follow_cum, regret_own, regret_follow,
                driven)
         if continuum:
-            num = (mass_l * regret_own).sum(axis=1) + (mass_f * regret_follow).sum(axis=1)
-            worst = np.max(np.where(mass_l > 0, regret_own, -np.inf), axis=1)
-            if follow_share > 0:
-                worst = np.maximum(worst, regret_follow.max(axis=1))
+            w_learn = np.broadcast_to(mass_l, regret_own.shape)
+            w_follow = np.broadcast_to(mass_f, regret_own.shape)
+            reg_follow = regret_follow
         else:
-            num = (agent_mass[None, :] * regret_own).sum(axis=1)
-            worst = regret_own.max(axis=1)
+            w_learn = agent_mass[None, :] * (1 - follower)
+            w_follow = agent_mass[None, :] * follower
+            reg_follow = regret_own
             if t > 0:
                 rec["switching_share"][t] = ((driven != prev_driven) * agent_mass[None, :]
                                              ).sum(axis=1) / total_q
             prev_driven[:] = driven
-        rec["mean_regret"][t] = num / total_q / (t + 1)
+        learners = w_learn.sum(axis=1)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            num = (w_learn * regret_own).sum(axis=1) / learners
+            rec["advice_regret"][t] = ((w_follow * reg_follow).sum(axis=1)
+                                       / w_follow.sum(axis=1) / (t + 1))
+        worst = np.max(np.where(w_learn > 0, regret_own, -np.inf), axis=1)
+        rec["mean_regret"][t] = np.where(learners > 0, num, np.nan) / (t + 1)
+        worst = np.where(learners > 0, worst, np.nan)
         rec["max_regret"][t] = worst / (t + 1)
         _od_best(c_route, od_ptr, od_min, adv)
 
@@ -730,7 +761,8 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
         route_shares = pd.concat(parts, ignore_index=True)
 
     noisy = supply_noise > 0 or estimate_noise > 0 or not continuum
-    osc, period = _oscillation(hist, days, window, max_lag, ue_norm, noisy)
+    osc, period = _oscillation(hist, days, window, max_lag, ue_norm, noisy,
+                               rec["route_set_gap"], gap_target)
     gaps = rec["relative_gap"]
     reached = np.where(np.nan_to_num(gaps, nan=np.inf) <= gap_target, 1, 0)
     first = np.where(reached.any(axis=0), reached.argmax(axis=0) + 1.0, np.nan)
@@ -764,14 +796,15 @@ def _gaps(tstt, sptt):
     return np.where(tstt == 0, np.where(sptt == 0, 0.0, np.inf), gap)
 
 
-def _oscillation(hist, days, window, max_lag, scale, noisy):
-    """Whether flows still move at the end, and the period of a cycle (0 if none).
+def _oscillation(hist, days, window, max_lag, scale, noisy, gaps, gap_target):
+    """Whether flows still swing at the end, and the period of a cycle (0 if none).
 
     Over the last ``window`` days, ``d(p)`` is the mean distance between the flows of
-    day ``t`` and day ``t - p`` (relative to the UE flows). The flows *move* when
-    ``d(1) > 1e-3``; the period is the smallest ``p >= 2`` with ``d(p) < d(1) / 4``.
-    Without noise moving flows count as oscillating; with noise only a detected cycle
-    does.
+    day ``t`` and day ``t - p`` (relative to the UE flows). The flows *swing* when
+    ``d(1) > 1e-3`` and the mean route-set gap of those days exceeds ``gap_target``
+    (small moves close to equilibrium do not count); the period is the smallest
+    ``p >= 2`` with ``d(p) < d(1) / 4``. Without noise swinging flows oscillate; with
+    noise only a detected cycle counts.
     """
     n_rep = hist.shape[1]
     size = hist.shape[0]
@@ -783,7 +816,7 @@ def _oscillation(hist, days, window, max_lag, scale, noisy):
             a = hist[t % size]
             b = hist[(t - p) % size]
             dist[p] += np.linalg.norm(a - b, axis=1) / scale / window
-    moving = dist[1] > 1e-3
+    moving = (dist[1] > 1e-3) & (gaps[days - window:days].mean(axis=0) > gap_target)
     period = np.zeros(n_rep, dtype=np.int64)
     for r in range(n_rep):
         if moving[r]:
