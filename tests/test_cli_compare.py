@@ -137,3 +137,29 @@ def test_toll_max_charge_binds(two_routes, tmp_path):
     share = float(result.output.split("recovered: ")[1].split("%")[0])
     assert 0.0 < share < 100.0
     assert np.isfinite(share)
+
+
+def test_toll_with_classes(two_routes, tmp_path):
+    out = tmp_path / "fb.csv"
+    # one class at the network's value of time: the per-class table is the single-class
+    # result of the first-best tolls
+    result = run(["toll", str(two_routes), "--value-of-time", "60", "--gap", "1e-11",
+                  "--class", "all:1:60", "--out", str(out)], tmp_path)
+    assert result.exit_code == 0, result.output
+    table = pd.read_csv(tmp_path / "fb-classes.csv", index_col="class")
+    # SO mean trip time (213/36) / 2 against UE 3 minutes (by hand, see two_routes)
+    assert table.loc["all", "time_change_min"] == pytest.approx(213 / 72 - 3.0, abs=1e-5)
+    # toll paid per trip: revenue 99/36 over 2 trips, money = minutes at 60/h
+    assert table.loc["all", "toll_change_money"] == pytest.approx(99 / 72, abs=1e-5)
+    assert "per class" in result.output
+
+
+@pytest.mark.parametrize("spec, words", [
+    ("all:1", "NAME:SHARE:VALUE_OF_TIME"),
+    ("all:x:60", "must be numbers"),
+    ("all:0.5:60", "sum to 1"),
+])
+def test_toll_bad_class(two_routes, tmp_path, spec, words):
+    result = run(["toll", str(two_routes), "--class", spec], tmp_path)
+    assert result.exit_code == 1
+    assert words in result.output

@@ -10,7 +10,7 @@ import click
 from ._common import friendly_errors
 from .solve import check_paths, load_network, network_options
 
-__all__ = ["command", "parse_groups"]
+__all__ = ["command", "parse_groups", "parse_classes"]
 
 
 def _slug(text):
@@ -61,6 +61,26 @@ def parse_groups(net, on_links, on_attribute):
     return groups
 
 
+def parse_classes(values):
+    """User classes from ``--class NAME:SHARE:VALUE_OF_TIME`` values."""
+    from ..exceptions import InputError
+    from ..multiclass import UserClass
+
+    classes = []
+    for text in values:
+        parts = [p.strip() for p in str(text).split(":")]
+        if len(parts) != 3 or not parts[0]:
+            raise InputError("--class takes NAME:SHARE:VALUE_OF_TIME, e.g. "
+                             "business:0.2:45", value=text)
+        try:
+            share, vot = float(parts[1]), float(parts[2])
+        except ValueError:
+            raise InputError("--class share and value of time must be numbers",
+                             value=text) from None
+        classes.append(UserClass(parts[0], share, vot))
+    return classes
+
+
 @click.command("toll")
 @click.argument("network", type=click.Path(exists=True))
 @click.option("--on", "on_links", multiple=True, metavar="IDS",
@@ -82,6 +102,10 @@ def parse_groups(net, on_links, on_attribute):
                    "finite-difference gradients, for tight gaps).")
 @click.option("--max-evals", type=click.IntRange(min=2), default=200, show_default=True,
               help="Second best: cap on equilibrium solves.")
+@click.option("--class", "class_specs", multiple=True, metavar="NAME:SHARE:VOT",
+              help="A user class: its share of every OD pair's trips and its value of time "
+                   "(money per hour). Repeat; shares sum to 1. Adds a table of who gains "
+                   "and who pays under the tolls (<out>-classes.csv).")
 @click.option("--out", "out", type=click.Path(dir_okay=False), default=None,
               help="Toll table CSV. Default: <network>-tolls.csv in the current folder.")
 @click.option("--gap", type=float, default=1e-8, show_default=True,
@@ -92,8 +116,8 @@ def parse_groups(net, on_links, on_attribute):
               help="Iteration cap of each solve.")
 @network_options
 @friendly_errors
-def command(network, on_links, on_attribute, max_charge, search, max_evals, out, gap,
-            method, max_iter, **net_opts):
+def command(network, on_links, on_attribute, max_charge, search, max_evals, class_specs,
+            out, gap, method, max_iter, **net_opts):
     """Write the first-best (marginal-cost) or second-best toll table of NETWORK.
 
     Without --on/--on-attribute every link gets its marginal-cost toll x t'(x) at the
@@ -106,6 +130,7 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, out,
       congest toll networks/quillhaven
       congest toll networks/quillhaven --on-attribute facility_type=bridge
       congest toll networks/quillhaven --on 101,102 --on 205,206 --max-charge 8
+      congest toll networks/quillhaven --class commuter:0.8:15 --class business:0.2:45
     """
     import pandas as pd
 
@@ -116,6 +141,11 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, out,
     net, layout = load_network(network, **net_opts)
     check_paths(net, layout)
     groups = parse_groups(net, on_links, on_attribute)
+    classes = parse_classes(class_specs)
+    if classes:
+        from ..multiclass import _check_classes
+
+        _check_classes(classes)
     if out is None:
         out = Path(f"{_slug(Path(network).resolve().stem)}-tolls.csv")
     fb = first_best(net, tol=gap, method=method, max_iter=max_iter)
@@ -123,6 +153,7 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, out,
     ends = {"link_id": net.link_ids, "from_node": net.node_ids[net.tail],
             "to_node": net.node_ids[net.head]}
     if not groups:
+        link_money = fb.tolls_money
         frame = pd.DataFrame({**ends, "so_flow": fb.so.flow,
                               "toll_min": fb.tolls_minutes, "toll_money": fb.tolls_money,
                               "tolled_flow": fb.tolled_ue.flow, "ue_flow": fb.ue.flow})
@@ -154,6 +185,7 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, out,
                              "tolled_flow": float(sb.tolled_ue.flow[i]),
                              "first_best_toll_money": float(fb.tolls_money[i])})
         frame = pd.DataFrame(rows)
+        link_money = sb.link_tolls_minutes * (net.value_of_time / 60.0)
         share = sb.share_of_first_best
         share_text = "n/a (UE is already SO)" if math.isnan(share) else f"{100 * share:.1f}%"
         tolls = ", ".join(f"group {g + 1}: {m:.2f} {cur}" for g, m in enumerate(sb.tolls_money))
@@ -166,10 +198,33 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, out,
             f"revenue {sb.revenue_money:,.2f} {cur}; {sb.evaluations} equilibrium solves "
             f"({sb.method}{'' if sb.converged else ', not converged: ' + sb.message})",
         ]
+    written = [(out, frame, False)]
+    if classes:
+        from ..multiclass import class_impacts
+
+        impacts = class_impacts(net, classes, link_money, tol=max(gap, 1e-7),
+                                max_iter=max_iter)
+        table = impacts.table
+        class_out = Path(out).with_name(Path(out).stem + "-classes.csv")
+        written.append((class_out, table, True))
+        lines.append(f"per class (multi-class equilibrium, relative gap "
+                     f"{impacts.tolled.relative_gap:.1e}):")
+        lines.append(f"  {'class':<14}{'trips':>10}{'min/trip':>10}{'toll/trip':>11}"
+                     f"{'d min':>9}{'d cost ' + cur:>16}")
+        for name, row in table.iterrows():
+            lines.append(f"  {str(name):<14}{row['trips']:>10,.0f}{row['mean_time_min']:>10.2f}"
+                         f"{row['mean_toll_money']:>11.2f}{row['time_change_min']:>+9.2f}"
+                         f"{row['cost_change_money']:>+16.2f}")
+        lines.append("  (d = change against no toll; cost = time at the class's value of "
+                     "time plus toll, before any use of the revenue)")
     try:
-        with atomic_write(out, newline="") as fh:
-            frame.to_csv(fh, index=False, lineterminator="\n")
+        for path, data, keep_index in written:
+            with atomic_write(path, newline="") as fh:
+                data.to_csv(fh, index=keep_index, lineterminator="\n")
     except OSError as err:
         raise InputError(f"cannot write the toll table: {err.strerror}", path=out) from err
-    for line in lines + [f"toll table: {out}"]:
+    lines.append(f"toll table: {out}")
+    if classes:
+        lines.append(f"class table: {written[1][0]}")
+    for line in lines:
         click.echo(line)
