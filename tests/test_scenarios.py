@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
@@ -176,3 +178,28 @@ def test_reader_leaves_input_unchanged(tmp_path):
     path = write(tmp_path, text)
     read_toll_plan(path, grid_net())
     assert path.read_text() == text
+
+
+# ------------------------------------------------------------------- demo city
+DEMO = Path(__file__).resolve().parents[1] / "networks" / "quillhaven"
+
+
+@pytest.mark.slow
+def test_demo_city_story():
+    # the demo city is built so that selfish routing costs something (price of anarchy
+    # of at least about 1.05) and a toll on the Old Bridge matters
+    if not (DEMO / "link.csv").exists():
+        pytest.skip("demo city not built")
+    from congest.io import read_network
+    from congest.pricing import second_best
+
+    net = read_network(DEMO)
+    cmp = compare(net, tol=1e-6)
+    t = cmp.table
+    assert t.loc["user_equilibrium", "ratio_to_so"] >= 1.05
+    assert t.loc["marginal_cost_tolls", "ratio_to_so"] == pytest.approx(1.0, abs=1e-4)
+    # advice to all on free-flow routes is worse than selfish routing
+    assert t.loc["free_flow_advice", "ratio_to_so"] > t.loc["user_equilibrium", "ratio_to_so"]
+    bridge = net.link_ids[net.link_attrs["facility_type"] == "old_bridge"].tolist()
+    sb = second_best(net, [bridge], tol=1e-6, first_best_result=cmp.results["first_best"])
+    assert 0.0 < sb.share_of_first_best < 1.0
