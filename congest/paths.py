@@ -248,5 +248,6 @@ class ShortestPaths:
         """Zone-index pairs with demand but no path, as an array of shape (k, 2)."""
         _, od_cost = self.all_or_nothing(self.network.free_flow_time + 1.0)
         demand = self.network.demand
-        bad = (demand > 0) & ~np.isfinite(np.nan_to_num(od_cost, nan=np.inf))
+        # inf marks no path (nan_to_num would turn it into a large finite number)
+        bad = (demand > 0) & ~np.isfinite(od_cost)
         return np.argwhere(bad)
