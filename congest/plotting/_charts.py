@@ -98,6 +98,7 @@ def convergence_chart(results, *, tol=None, title="Convergence", figsize=(11.0, 
         raise ValueError("convergence_chart needs at least one result")
     fig, (ax_it, ax_t) = _new_figure(figsize, n_cols=2)
     floor = None
+    ends = {"iteration": [], "wall_time": []}
     for k, (label, hist) in enumerate(items):
         gap = hist.get("relative_gap")
         if gap is None or gap.size == 0:
@@ -107,11 +108,18 @@ def convergence_chart(results, *, tol=None, title="Convergence", figsize=(11.0, 
             lo = float(np.nanmin(shown))
             floor = lo if floor is None else min(floor, lo)
         style = {"color": PALETTE[k % len(PALETTE)], "ls": _STYLES[(k // 2) % len(_STYLES)],
-                 "lw": 1.6, "label": label}
+                 "lw": 1.5 if gap.size < 300 else 1.0, "label": label}
         iters = hist.get("iteration", np.arange(1, gap.size + 1, dtype=np.float64))
         ax_it.plot(iters, shown, **style)
+        ends["iteration"].append(float(np.max(iters)))
         if "wall_time" in hist:
             ax_t.plot(hist["wall_time"], shown, **style)
+            ends["wall_time"].append(float(np.max(hist["wall_time"])))
+    for ax, key in ((ax_it, "iteration"), (ax_t, "wall_time")):
+        # runs of very different lengths: a log axis keeps the short ones visible
+        span = [e for e in ends[key] if e > 0]
+        if len(span) > 1 and max(span) > 20 * min(span):
+            ax.set_xscale("log")
     for ax in (ax_it, ax_t):
         ax.set_yscale("log")
         if tol is not None:
@@ -119,8 +127,10 @@ def convergence_chart(results, *, tol=None, title="Convergence", figsize=(11.0, 
             ax.text(1.0, tol, f" target {tol:.0e}", transform=ax.get_yaxis_transform(),
                     fontsize=7.5, color=_MUTED, va="bottom", ha="right")
         ax.grid(True, axis="x", color="#f0f2f4", lw=0.6)
-    _label(ax_it, "Iteration", "Relative gap (log scale)")
-    _label(ax_t, "Time, seconds", "Relative gap (log scale)")
+    _label(ax_it, "Iteration" + (" (log scale)" if ax_it.get_xscale() == "log" else ""),
+           "Relative gap (log scale)")
+    _label(ax_t, "Time since the solve started, seconds"
+           + (" (log scale)" if ax_t.get_xscale() == "log" else ""), "Relative gap (log scale)")
     ax_it.legend(fontsize=8, frameon=False, loc="upper right")
     best = f"best final gap {floor:.1e}" if floor is not None else "no gap history"
     _titles(fig, title, f"{len(items)} run(s)  ·  {best}")
