@@ -54,7 +54,9 @@ class Table:
         if len(dup):
             raise InputError("column appears twice in the header", path=self.path,
                              row=1, column=dup[0])
-        self.frame = frame.apply(lambda col: col.str.strip())
+        # a list comprehension strips object columns several times faster than .str
+        self.frame = pd.DataFrame({c: [v.strip() for v in frame[c].to_numpy(dtype=object)]
+                                   for c in frame.columns}, index=frame.index, dtype=object)
         self.n_rows = len(frame)
 
     @property
@@ -265,14 +267,19 @@ def check_links(table, tail_ids, head_ids, kind, alpha, capacity, *, from_col, t
         table.fail("the conical cost function needs alpha > 1", index=i, value=alpha[i])
 
 
+def lookup(keys, values):
+    """Position of each of ``values`` in the unique array ``keys`` (-1 where absent)."""
+    return pd.Index(np.asarray(keys, dtype=np.int64)).get_indexer(
+        np.asarray(values, dtype=np.int64)).astype(np.int64)
+
+
 def demand_matrix(table, origins, destinations, trips, zone_ids, *, origin_col,
                   destination_col, trips_col, zone_word="zone"):
     """Dense OD matrix from rows, rejecting unknown zones and repeated pairs."""
     zone_ids = np.asarray(zone_ids, dtype=np.int64)
-    index = {int(z): i for i, z in enumerate(zone_ids)}
     n = zone_ids.size
-    oi = np.array([index.get(int(v), -1) for v in origins], dtype=np.int64)
-    di = np.array([index.get(int(v), -1) for v in destinations], dtype=np.int64)
+    oi = lookup(zone_ids, origins)
+    di = lookup(zone_ids, destinations)
     bad = np.flatnonzero((oi < 0) | (di < 0))
     if bad.size:
         i = int(bad[0])

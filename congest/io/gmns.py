@@ -36,7 +36,7 @@ import pandas as pd
 
 from ..exceptions import InputError
 from ..network import COST_KINDS, Network
-from ._table import Table, check_links, check_unique, cost_kinds, demand_matrix
+from ._table import Table, check_links, check_unique, cost_kinds, demand_matrix, lookup
 from .atomic import atomic_folder
 
 __all__ = ["read_gmns", "write_gmns", "SETTINGS_FILE", "TRIPS_FILE", "DEFAULT_SETTINGS"]
@@ -230,9 +230,8 @@ def read_gmns(folder, **overrides) -> Network:
     check_unique(links, link_ids, "link_id", "link id")
     tail_ids = links.ids("from_node_id", describe="from node")
     head_ids = links.ids("to_node_id", describe="to node")
-    index = {int(v): i for i, v in enumerate(node_ids)}
-    tail = _node_indices(links, tail_ids, index, "from_node_id")
-    head = _node_indices(links, head_ids, index, "to_node_id")
+    tail = _node_indices(links, tail_ids, node_ids, "from_node_id")
+    head = _node_indices(links, head_ids, node_ids, "to_node_id")
     directed = links.boolean("directed", default=True)
     kind = cost_kinds(links, "u_cost_kind", str(cost["kind"]).lower())
     alpha = links.number("u_alpha", default=float(cost["alpha"]), minimum=0,
@@ -341,13 +340,11 @@ def read_gmns(folder, **overrides) -> Network:
     )
 
 
-def _node_indices(table, ids, index, column):
-    out = np.empty(ids.size, dtype=np.int64)
-    for i, v in enumerate(ids):
-        j = index.get(int(v))
-        if j is None:
-            table.fail("unknown node: not in node.csv", index=i, column=column, value=int(v))
-        out[i] = j
+def _node_indices(table, ids, node_ids, column):
+    out = lookup(node_ids, ids)
+    if (out < 0).any():
+        i = int(np.flatnonzero(out < 0)[0])
+        table.fail("unknown node: not in node.csv", index=i, column=column, value=int(ids[i]))
     return out
 
 

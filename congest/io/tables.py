@@ -22,7 +22,7 @@ import numpy as np
 
 from ..exceptions import InputError
 from ..network import Network
-from ._table import Table, check_links, check_unique, cost_kinds, demand_matrix
+from ._table import Table, check_links, check_unique, cost_kinds, demand_matrix, lookup
 
 __all__ = ["read_tables", "parse_zones"]
 
@@ -188,11 +188,10 @@ def read_tables(links_path, demand_path, *, zones=None, through_centroids=False,
                            destination_col="destination", trips_col=trips_col)
     node_ids = np.unique(np.concatenate([link_nodes, zones]))
     index = {int(v): i for i, v in enumerate(node_ids)}
-    lookup = np.vectorize(index.__getitem__, otypes=[np.int64])
     options = {"length_unit": "", **network_options}
     return Network(
-        node_ids=node_ids, tail=lookup(tail_ids) if tail_ids.size else tail_ids,
-        head=lookup(head_ids) if head_ids.size else head_ids, capacity=capacity,
+        node_ids=node_ids, tail=lookup(node_ids, tail_ids),
+        head=lookup(node_ids, head_ids), capacity=capacity,
         free_flow_time=fft, alpha=alpha, beta=beta, cost_kind=kind, fixed_cost=fixed,
         toll=toll, length=length, link_ids=link_ids, zone_ids=zones,
         zone_nodes=[index[int(z)] for z in zones], demand=demand,
