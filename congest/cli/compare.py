@@ -127,7 +127,7 @@ def render_table(cmp):
 @click.option("--out-dir", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for scenarios.csv, scenarios.json and links/<scenario>.csv. "
                    "Default: <network>-compare in the current folder.")
-@click.option("--gap", type=float, default=1e-8, show_default=True,
+@click.option("--gap", type=float, default=1e-10, show_default=True,
               help="Target relative gap of every equilibrium solve.")
 @click.option("--method", default="auto", show_default=True,
               help="Equilibrium method: auto, or one of congest.METHODS.")

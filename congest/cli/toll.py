@@ -108,7 +108,7 @@ def parse_classes(values):
                    "and who pays under the tolls (<out>-classes.csv).")
 @click.option("--out", "out", type=click.Path(dir_okay=False), default=None,
               help="Toll table CSV. Default: <network>-tolls.csv in the current folder.")
-@click.option("--gap", type=float, default=1e-8, show_default=True,
+@click.option("--gap", type=float, default=1e-10, show_default=True,
               help="Target relative gap of every equilibrium solve.")
 @click.option("--method", default="auto", show_default=True,
               help="Equilibrium method: auto, or one of congest.METHODS.")
