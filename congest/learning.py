@@ -643,6 +643,7 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
     ue_norm = float(np.linalg.norm(ue_flow)) or 1.0
     window, max_lag = max(2, min(20, days // 4)), 10
     hist = np.zeros((window + max_lag, R, network.n_links))
+    moves = np.zeros((days, R))
 
     rec = {name: np.full((days, R), np.nan) for name in (
         "total_travel_time", "total_cost", "relative_gap", "route_set_gap",
@@ -682,6 +683,8 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
         route_cum += c_route
         sum_x += x
         sum_f += f
+        if t > 0:
+            moves[t] = np.linalg.norm(x - hist[(t - 1) % hist.shape[0]], axis=1) / ue_norm
         hist[t % hist.shape[0]] = x
 
         tstt_nom = np.einsum("ij,ij->i", x, c_nom)
@@ -762,7 +765,7 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
 
     noisy = supply_noise > 0 or estimate_noise > 0 or not continuum
     osc, period = _oscillation(hist, days, window, max_lag, ue_norm, noisy,
-                               rec["route_set_gap"], gap_target)
+                               rec["route_set_gap"], gap_target, moves)
     gaps = rec["relative_gap"]
     reached = np.where(np.nan_to_num(gaps, nan=np.inf) <= gap_target, 1, 0)
     first = np.where(reached.any(axis=0), reached.argmax(axis=0) + 1.0, np.nan)
@@ -796,15 +799,16 @@ def _gaps(tstt, sptt):
     return np.where(tstt == 0, np.where(sptt == 0, 0.0, np.inf), gap)
 
 
-def _oscillation(hist, days, window, max_lag, scale, noisy, gaps, gap_target):
+def _oscillation(hist, days, window, max_lag, scale, noisy, gaps, gap_target, moves):
     """Whether flows still swing at the end, and the period of a cycle (0 if none).
 
     Over the last ``window`` days, ``d(p)`` is the mean distance between the flows of
     day ``t`` and day ``t - p`` (relative to the UE flows). The flows *swing* when
-    ``d(1) > 1e-3`` and the mean route-set gap of those days exceeds ``gap_target``
-    (small moves close to equilibrium do not count); the period is the smallest
-    ``p >= 2`` with ``d(p) < d(1) / 4``. Without noise swinging flows oscillate; with
-    noise only a detected cycle counts.
+    ``d(1) > 1e-3``, the mean route-set gap of those days exceeds ``gap_target`` (small
+    moves close to equilibrium do not count) and the day-to-day moves have not shrunk
+    to under 3/4 of what they were half-way through (a dying swing does not count);
+    the period is the smallest ``p >= 2`` with ``d(p) < d(1) / 4``. Without noise
+    swinging flows oscillate; with noise only a detected cycle counts.
     """
     n_rep = hist.shape[1]
     size = hist.shape[0]
@@ -816,7 +820,11 @@ def _oscillation(hist, days, window, max_lag, scale, noisy, gaps, gap_target):
             a = hist[t % size]
             b = hist[(t - p) % size]
             dist[p] += np.linalg.norm(a - b, axis=1) / scale / window
-    moving = (dist[1] > 1e-3) & (gaps[days - window:days].mean(axis=0) > gap_target)
+    half = days // 2
+    earlier = moves[max(1, half - window):half].mean(axis=0)
+    later = moves[days - window:days].mean(axis=0)
+    moving = ((dist[1] > 1e-3) & (gaps[days - window:days].mean(axis=0) > gap_target)
+              & (later >= 0.75 * earlier))
     period = np.zeros(n_rep, dtype=np.int64)
     for r in range(n_rep):
         if moving[r]:
