@@ -150,13 +150,13 @@ def build_report(network, *, tol=1e-6, method="auto", advice_share=0.5, toll_pla
                                        replications=int(learning_replications), seed=seed,
                                        equilibrium=ue if ue.state is not None else None)
     _step(progress, "charts")
-    charts = _charts(net, cmp, sweep_result, learning_result, notes, SolverError)
+    charts = _charts(net, cmp, sweep_result, learning_result, notes, SolverError, tol)
     notes.append(coordinate_note(net.crs))
     return Report(network=net, comparison=cmp, charts=charts, sweep=sweep_result,
                   learning=learning_result, notes=notes)
 
 
-def _charts(net, cmp, sweep_result, learning_result, notes, solver_error):
+def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
     from . import plotting
 
     fb = cmp.results["first_best"]
@@ -208,7 +208,7 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error):
                         "Each measure as a percentage of user equilibrium."))
     runs = {f"{r.method} ({r.objective.upper()})": r for r in (ue, so) if r.history}
     if runs:
-        charts.append(Chart("convergence", plotting.convergence_chart(runs),
+        charts.append(Chart("convergence", plotting.convergence_chart(runs, tol=tol),
                             "Convergence", "Relative gap of the UE and SO solves."))
     if sweep_result is not None and not sweep_result.table.empty:
         charts.append(Chart("sweep", plotting.sweep_chart(sweep_result.table,

@@ -1,0 +1,177 @@
+"""The report folder and the plot/report commands (through click's CliRunner).
+
+Checks: every image the HTML page and the Markdown summary reference exists (or is an
+embedded data URI that decodes to a picture), the cautions are on the page, the table
+matches the comparison, the GeoJSON carries every scenario's volumes, plotting leaves the
+result files it reads unchanged, and bad inputs give one-line errors.
+"""
+
+from __future__ import annotations
+
+import base64
+import hashlib
+import json
+import re
+from pathlib import Path
+
+import matplotlib
+
+matplotlib.use("Agg")
+
+import numpy as np
+import pandas as pd
+import pytest
+from click.testing import CliRunner
+
+from congest.cli import main
+from congest.generate import grid_network
+from congest.io import write_gmns
+from congest.io.geojson import read_link_geojson
+from congest.report import CAUTIONS, build_report, write_report
+
+
+@pytest.fixture(scope="module")
+def city():
+    return grid_network(5, 6, n_zones=6, seed=3, name="Test town")
+
+
+@pytest.fixture(scope="module")
+def folder(city, tmp_path_factory):
+    path = tmp_path_factory.mktemp("net") / "town"
+    write_gmns(city, path)
+    return path
+
+
+@pytest.fixture(scope="module")
+def report(city):
+    return build_report(city, tol=1e-6, sweep_levels=[0.5, 1.0], learning_days=20,
+                        learning_replications=2)
+
+
+def image_sources(page):
+    return re.findall(r'<img src="([^"]+)"', page)
+
+
+def test_html_references_only_images_that_exist(report, tmp_path):
+    written = write_report(report, tmp_path / "linked", embed=False)
+    out = tmp_path / "linked"
+    page = (out / "report.html").read_text()
+    sources = image_sources(page)
+    assert len(sources) == len(report.charts) >= 8
+    for src in sources:
+        assert not src.startswith(("/", "http")), src  # relative: the folder travels
+        assert (out / src).is_file(), src
+        assert (out / src).read_bytes().startswith(b"\x89PNG")
+    md = (out / "summary.md").read_text()
+    for src in re.findall(r"!\[[^\]]*\]\(([^)]+)\)", md):
+        assert (out / src).is_file(), src
+    assert {p.name for p in written} == {p.name for p in out.iterdir()}
+
+
+def test_embedded_page_stands_alone(report, tmp_path):
+    write_report(report, tmp_path)
+    page = (tmp_path / "report.html").read_text()
+    sources = image_sources(page)
+    assert len(sources) == len(report.charts)
+    for src in sources:
+        head, data = src.split(",", 1)
+        assert head == "data:image/png;base64"
+        assert base64.b64decode(data).startswith(b"\x89PNG")
+
+
+def test_page_and_summary_carry_the_cautions(report, tmp_path):
+    write_report(report, tmp_path)
+    page = (tmp_path / "report.html").read_text()
+    md = (tmp_path / "summary.md").read_text()
+    for caution in CAUTIONS:
+        assert caution in md
+        assert caution.replace("'", "&#x27;") in page
+    assert "planning-level" in page and "not for operational control or safety design" in page
+
+
+def test_table_and_geojson_match_the_comparison(report, city, tmp_path):
+    write_report(report, tmp_path)
+    table = pd.read_csv(tmp_path / "scenarios.csv", index_col=0)
+    np.testing.assert_allclose(table["vehicle_hours"],
+                               report.comparison.table["vehicle_hours"], rtol=1e-12)
+    links = read_link_geojson(tmp_path / "links.geojson")
+    for key, frame in report.comparison.links.items():
+        np.testing.assert_array_equal(links[f"volume_{key}"], frame["flow"])
+    data = json.loads((tmp_path / "links.geojson").read_text())
+    assert "coordinate_note" in data  # generated towns are on a local plane
+    # the summary's key figure is the comparison's price of anarchy
+    fb = report.comparison.results["first_best"]
+    assert f"Price of anarchy {fb.price_of_anarchy:.4f}" in (tmp_path / "summary.md").read_text()
+
+
+def test_svg_report(report, tmp_path):
+    write_report(report, tmp_path, image_format="svg", embed=False)
+    for src in image_sources((tmp_path / "report.html").read_text()):
+        assert src.endswith(".svg") and (tmp_path / src).read_text().lstrip().startswith("<?xml")
+
+
+# ---------------------------------------------------------------------- CLI
+def digest(path):
+    return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+
+
+def test_cli_report_writes_the_folder(folder, tmp_path):
+    out = tmp_path / "rep"
+    res = CliRunner().invoke(main, ["report", str(folder), "--out-dir", str(out), "--gap",
+                                    "1e-5", "--no-progress"])
+    assert res.exit_code == 0, res.output
+    assert "report.html" in res.output
+    page = (out / "report.html").read_text()
+    assert all(c.replace("'", "&#x27;") in page for c in CAUTIONS)
+    assert "not longitude/latitude" in res.output  # the GeoJSON coordinate message
+
+
+def test_cli_plot_kinds_and_formats(folder, tmp_path):
+    runner = CliRunner()
+    solved = tmp_path / "ue.csv"
+    res = runner.invoke(main, ["solve", str(folder), "--gap", "1e-6", "--out", str(solved)])
+    assert res.exit_code == 0, res.output
+    before = digest(solved)
+    for kind, suffix, magic in (("flow", ".png", b"\x89PNG"), ("difference", ".svg", b"<?xml"),
+                                ("toll", ".pdf", b"%PDF")):
+        out = tmp_path / f"{kind}{suffix}"
+        args = ["plot", kind, str(folder), "--out", str(out)]
+        if kind == "flow":
+            args += ["--results", str(solved), "--geojson", str(tmp_path / "ue.geojson")]
+        res = runner.invoke(main, args)
+        assert res.exit_code == 0, res.output
+        assert out.read_bytes().startswith(magic)
+    assert digest(solved) == before  # plotting never changes a result file
+    back = read_link_geojson(tmp_path / "ue.geojson")
+    np.testing.assert_allclose(back["volume"], pd.read_csv(solved)["volume"], rtol=1e-12)
+
+
+def test_cli_plot_select_link_and_tables(folder, tmp_path, city):
+    runner = CliRunner()
+    out = tmp_path / "sel.png"
+    link = str(int(city.link_ids[0]))
+    res = runner.invoke(main, ["plot", "select-link", str(folder), "--link", link, "--out",
+                               str(out)])
+    assert res.exit_code == 0, res.output
+    assert out.is_file()
+    table = tmp_path / "sweep.csv"
+    pd.DataFrame({"demand_scale": [0.5, 1.0], "price_of_anarchy": [1.01, 1.05],
+                  "first_best_revenue": [10.0, 50.0]}).to_csv(table, index=False)
+    res = runner.invoke(main, ["plot", "sweep", str(table), "--out", str(tmp_path / "s.png")])
+    assert res.exit_code == 0, res.output
+
+
+def test_cli_plot_errors_are_one_line(folder, tmp_path):
+    runner = CliRunner()
+    bad = tmp_path / "bad.csv"
+    bad.write_text("link_id,volume\n1,abc\n")
+    res = runner.invoke(main, ["plot", "flow", str(folder), "--results", str(bad),
+                               "--out", str(tmp_path / "x.png")])
+    assert res.exit_code == 1
+    assert "row 2" in res.output and "'volume'" in res.output and "abc" in res.output
+    res = runner.invoke(main, ["plot", "flow", str(folder), "--out", str(tmp_path / "x.bmp")])
+    assert res.exit_code == 1 and "unknown picture format" in res.output
+    res = runner.invoke(main, ["plot", "select-link", str(folder), "--link", "999999",
+                               "--out", str(tmp_path / "x.png")])
+    assert res.exit_code == 1 and "999999" in res.output
+    assert not (tmp_path / "x.png").exists()
