@@ -432,3 +432,14 @@ def test_inspect_reports_unreachable_pairs(tmp_path):
     res = CliRunner().invoke(main, ["inspect", str(gmns(tmp_path, links=links))])
     assert res.exit_code == 1
     assert "problem: 1 OD pair(s) with trips have no path: 2->1" in res.stdout
+
+
+def test_network_without_trips_warns(tmp_path):
+    folder = tmp_path / "empty"
+    folder.mkdir()
+    for name in ("node.csv", "link.csv", "config.csv"):
+        shutil.copy(NETWORKS / "braess" / name, folder / name)
+    res = run(folder, "--out", tmp_path / "o.csv")
+    assert res.exit_code == 0
+    assert "no trips (no trip table found)" in res.stderr
+    assert_allclose(pd.read_csv(tmp_path / "o.csv")["volume"], 0.0)

@@ -187,6 +187,10 @@ def command(network, objective, method, gap, max_iter, time_limit, out, as_json,
     from ..io import link_results, write_link_results
 
     net, layout = load_network(network, **net_opts)
+    if net.total_demand == 0:
+        where = "no trip table found" if layout.demand is None else f"{layout.demand}"
+        click.echo(f"warning: the network has no trips ({where}); every volume is zero",
+                   err=True)
     check_paths(net, layout)
     result = solve(net, objective=objective, method=method, tol=gap, max_iter=max_iter,
                    time_limit=time_limit)
