@@ -23,8 +23,8 @@ Zone productions and attractions are drawn from a log-normal law; trips follow t
 gravity model with an exponential deterrence in free-flow time,
 ``T_ij = k P_i A_j exp(-c_ij / tau)`` with ``tau`` the mean zone-to-zone free-flow time
 (Wilson 1970). The scale ``k`` is set so that a volume/capacity statistic over the road
-links (not connectors) -- ``"p90"`` (90th percentile, the default) or ``"mean"`` -- hits
-``vc_target``:
+links (not connectors) that carry traffic -- ``"p90"`` (90th percentile, the default) or
+``"mean"`` -- hits ``vc_target``:
 
 * ``calibrate="aon"`` (default): at the free-flow all-or-nothing loading. Volumes are
   linear in ``k`` there, so one loading gives ``k`` exactly. Fast at any size; the
@@ -243,7 +243,9 @@ def _gravity(net, rng, spread):
 
 
 def _vc_stat(flow, capacity, statistic):
-    vc = flow / capacity
+    vc = flow[flow > 0] / capacity[flow > 0]
+    if vc.size == 0:
+        return 0.0
     return float(np.percentile(vc, 90.0)) if statistic == "p90" else float(vc.mean())
 
 

@@ -382,6 +382,10 @@ def _point_task(net, settings, point, previous):
     return _Outcome(row, None, nxt)
 
 
+def _identity(value):
+    return value
+
+
 def _outcome_row(outcome):
     return outcome.row, outcome.error
 
@@ -527,7 +531,9 @@ def _run_serial(net, settings, chains, run):
 def _run_dask(net, settings, chains, run, client, retries):
     from distributed import as_completed
 
-    net_future = client.scatter(net, broadcast=True, hash=False)
+    # a task rather than scattered data: if the worker holding it dies, the scheduler
+    # can make it again
+    net_future = client.submit(_identity, net, pure=False, retries=retries)
     pending = {}  # row future -> (chain, position)
     ac = as_completed()
 

@@ -1,0 +1,47 @@
+"""``congest sweep`` through click's test runner, on the shipped Pigou network."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from click.testing import CliRunner
+
+from congest.cli import main
+from congest.cli.sweep import parse_values
+from congest.exceptions import InputError
+
+PIGOU = Path(__file__).resolve().parents[1] / "networks" / "pigou"
+
+
+def test_sweep_writes_table_prints_peak_and_resumes(tmp_path):
+    out = tmp_path / "pigou.csv"
+    args = ["sweep", str(PIGOU), "--levels", "0.25:2:8", "--gap", "1e-10",
+            "--scheduler", "serial", "--out", str(out)]
+    first = CliRunner().invoke(main, args)
+    assert first.exit_code == 0, first.output
+    table = pd.read_csv(out)
+    assert len(table) == 8
+    # Pigou (1920) with costs 1 and x: PoA q^2 / (q - 1/4) on (1/2, 1], q / (q - 1/4)
+    # above 1, so the peak 4/3 is at q = 1 (Roughgarden & Tardos 2002)
+    q = table["demand_scale"].to_numpy()
+    ue = np.where(q <= 1, q**2, q)
+    so = np.where(q <= 0.5, q**2, q - 0.25)
+    np.testing.assert_allclose(table["price_of_anarchy"], ue / so, rtol=1e-8)
+    assert "peak price of anarchy       1.3333 at demand level 1" in first.output
+    assert "8 computed, 0 reused" in first.output
+    assert len(list((tmp_path / "pigou.csv.points").glob("*.json"))) == 8
+    again = CliRunner().invoke(main, args)
+    assert again.exit_code == 0 and "0 computed, 8 reused" in again.output
+
+
+def test_sweep_bad_levels_are_clear_errors(tmp_path):
+    for levels in ("a:b", "1,-2", "0:1:0"):
+        res = CliRunner().invoke(main, ["sweep", str(PIGOU), "--levels", levels,
+                                        "--scheduler", "serial",
+                                        "--out", str(tmp_path / "x.csv")])
+        assert res.exit_code == 1 and res.output.startswith("error:"), res.output
+    with pytest.raises(InputError, match="start:stop:count"):
+        parse_values("1:2", "--levels")
