@@ -14,6 +14,7 @@ from pathlib import Path
 
 import click
 
+from ..equilibrium import METHODS
 from ._common import friendly_errors
 
 __all__ = ["command", "network_options", "load_network", "check_paths"]
@@ -150,8 +151,8 @@ def summary_lines(result, net, out):
               help="ue: every driver takes a quickest route (Wardrop user equilibrium); "
                    "so: total travel time is least (system optimum).")
 @click.option("--method", default="auto", show_default=True,
-              help="Solution method: auto, or one of congest.METHODS (msa, fw, cfw, bfw, "
-                   "...).")
+              help="Solution method: auto (the library's default) or one of "
+                   f"{', '.join(sorted(METHODS))}.")
 @click.option("--gap", "gap", type=float, default=1e-4, show_default=True,
               help="Target relative gap (TSTT - SPTT) / TSTT.")
 @click.option("--max-iter", type=click.IntRange(min=1), default=None,
