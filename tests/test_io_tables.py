@@ -121,3 +121,11 @@ def test_reference_loads_through_read_network():
     net = read_network(path, zones="1-38")
     assert net.n_zones == 38 and not net.through_centroids
     assert_allclose(net.capacity, load_reference("anaheim").capacity)
+
+
+def test_zero_capacity_on_polynomial_link_is_an_error(tmp_path):
+    links = ("from_node,to_node,capacity,free_flow_time,alpha,beta,cost_kind\n"
+             "1,2,0,1,2,1,polynomial\n")
+    with pytest.raises(InputError, match="capacity is zero") as err:
+        read_tables(*tables(tmp_path, links=links, od="origin,destination,volume\n1,2,1\n"))
+    assert (err.value.row, err.value.column) == (2, "capacity")

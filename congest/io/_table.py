@@ -252,8 +252,8 @@ def check_links(table, tail_ids, head_ids, kind, alpha, capacity, *, from_col, t
         table.fail(f"link starts and ends at the same node (self-loop; "
                    f"{to_col!r} is {int(head_ids[i])} too)", index=i, column=from_col,
                    value=int(tail_ids[i]))
-    congestible = ((alpha > 0) & (kind != COST_KINDS["polynomial"])) | (
-        kind == COST_KINDS["conical"])
+    # every kind divides the volume by the capacity once alpha > 0 (conical always)
+    congestible = (alpha > 0) | (kind == COST_KINDS["conical"])
     zero = np.flatnonzero(congestible & (capacity <= 0))
     if zero.size:
         i = int(zero[0])
