@@ -3,12 +3,15 @@
 from __future__ import annotations
 
 import os
+from pathlib import Path
 
 import pandas as pd
 import pytest
 
 from congest import solve
 from congest.io import atomic_folder, atomic_write, read_network, write_gmns, write_link_results
+
+NETWORKS = Path(__file__).resolve().parents[1] / "networks"
 
 
 def leftovers(folder):
@@ -69,7 +72,7 @@ def test_atomic_folder_all_or_nothing(tmp_path):
 
 
 def test_write_gmns_failure_leaves_folder_unchanged(tmp_path, monkeypatch):
-    net = read_network("networks/braess")
+    net = read_network(NETWORKS / "braess")
     write_gmns(net, tmp_path)
     before = {p.name: p.read_bytes() for p in tmp_path.iterdir()}
     calls = []
@@ -88,7 +91,7 @@ def test_write_gmns_failure_leaves_folder_unchanged(tmp_path, monkeypatch):
 
 
 def test_write_link_results_failure_leaves_no_partial_file(tmp_path, monkeypatch):
-    result = solve(read_network("networks/braess"), tol=1e-8)
+    result = solve(read_network(NETWORKS / "braess"), tol=1e-8)
     target = tmp_path / "links.csv"
 
     def broken(self, fh, *args, **kwargs):

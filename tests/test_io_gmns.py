@@ -9,6 +9,7 @@ free speed in ``speed`` units, user columns start with ``u_``.
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import pytest
 from numpy.testing import assert_allclose, assert_array_equal
@@ -16,6 +17,8 @@ from numpy.testing import assert_allclose, assert_array_equal
 from congest.exceptions import InputError
 from congest.io import read_gmns, read_network, write_gmns
 from congest.network import COST_KINDS
+
+NETWORKS = Path(__file__).resolve().parents[1] / "networks"
 
 NODES = """node_id,x_coord,y_coord,zone_id,node_type,district
 1,0,0,1,centroid,north
@@ -203,7 +206,7 @@ def test_round_trip(tmp_path):
 
 
 def test_round_trip_of_demo_city(tmp_path):
-    net = read_network("networks/quillhaven")
+    net = read_network(NETWORKS / "quillhaven")
     write_gmns(net, tmp_path)
     back = read_gmns(tmp_path)
     assert_array_equal(back.link_ids, net.link_ids)
@@ -213,7 +216,7 @@ def test_round_trip_of_demo_city(tmp_path):
     # the committed files are exactly what write_gmns produces
     for name in ("node.csv", "link.csv", "trips.csv", "config.csv"):
         assert (tmp_path / name).read_text() == (
-            __import__("pathlib").Path("networks/quillhaven") / name).read_text(), name
+            NETWORKS / "quillhaven" / name).read_text(), name
 
 
 def test_write_gmns_of_plain_network(tmp_path):

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import networkx as nx
 import numpy as np
 import pytest
@@ -9,6 +11,8 @@ from numpy.testing import assert_allclose, assert_array_equal
 
 from congest.exceptions import NetworkError
 from congest.io import from_networkx, read_network, to_networkx
+
+NETWORKS = Path(__file__).resolve().parents[1] / "networks"
 
 
 def same_network(a, b):
@@ -23,7 +27,7 @@ def same_network(a, b):
 
 
 def test_round_trip_demo_city():
-    net = read_network("networks/quillhaven")
+    net = read_network(NETWORKS / "quillhaven")
     G = to_networkx(net)
     assert isinstance(G, nx.DiGraph) and not G.is_multigraph()
     assert G.number_of_edges() == net.n_links
@@ -34,7 +38,7 @@ def test_round_trip_demo_city():
 
 
 def test_parallel_links_need_a_multigraph():
-    net = read_network("networks/pigou")
+    net = read_network(NETWORKS / "pigou")
     G = to_networkx(net)
     assert G.is_multigraph() and G.number_of_edges() == 2
     same_network(net, from_networkx(G))
