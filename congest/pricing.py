@@ -58,11 +58,12 @@ __all__ = [
     "apply_toll_plan",
     "SecondBest",
     "second_best",
+    "toll_sensitivity",
     "SECOND_BEST_METHODS",
 ]
 
 #: Search methods of :func:`second_best`.
-SECOND_BEST_METHODS = ("auto", "bounded", "powell", "nelder-mead", "l-bfgs-b")
+SECOND_BEST_METHODS = ("auto", "bounded", "powell", "nelder-mead", "l-bfgs-b", "gradient")
 
 #: Tolls below this many minutes count as "no toll" when listing tolled links.
 TOLL_EPS_MIN = 1e-9
@@ -578,11 +579,14 @@ def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="aut
         cost to be a smooth function of the tolls, so solve tightly.
     method : str, default "auto"
         Equilibrium method (see :func:`congest.solve`).
-    search : {"auto", "bounded", "powell", "nelder-mead", "l-bfgs-b"}, default "auto"
-        ``"auto"`` is Brent's bounded method for one group and Powell's method with
-        bounds for several (both derivative-free). ``"l-bfgs-b"`` is the bounded
-        quasi-Newton method on forward-difference gradients (one extra solve per group
-        and gradient, step ``xtol``): it needs the tight gaps of a precise solver.
+    search : {"auto", "bounded", "powell", "nelder-mead", "l-bfgs-b", "gradient"}
+        ``"auto"`` (default) is Brent's bounded method for one group and Powell's
+        method with bounds for several (both derivative-free). ``"l-bfgs-b"`` is the
+        bounded quasi-Newton method on forward-difference gradients (one extra solve
+        per group and gradient, step ``xtol``); ``"gradient"`` is the same method on
+        the equilibrium's sensitivity (:func:`toll_sensitivity`: one solve per
+        gradient whatever the number of groups; needs a route-based equilibrium method
+        such as ``"gp"``). Both need the tight gaps of a precise solver.
     xtol : float, default 1e-4
         Toll tolerance of the search, minutes.
     max_evals : int, default 200
@@ -645,6 +649,7 @@ def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="aut
         expand[idx, j] = 1.0
 
     cache = {}
+    grads = {}
     trace_tolls, trace_cost = [], []
     state = {"warm": fb.ue, "stop": False, "best": (np.inf, None, None)}
     kw = {"tol": tol, "method": method, "max_iter": solver_max_iter}
@@ -661,6 +666,8 @@ def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="aut
         state["warm"] = eq
         value = system_cost(eq, net)
         cache[key] = value
+        if search == "gradient":
+            grads[key] = toll_sensitivity(eq, net, groups)[0]
         trace_tolls.append(tolls.copy())
         trace_cost.append(value)
         if value < state["best"][0]:
@@ -693,7 +700,19 @@ def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="aut
         else:
             name, opts = "L-BFGS-B", {"eps": xtol, "maxfun": max_evals, "ftol": 1e-12,
                                       "gtol": 1e-9 * scale}
-        res = minimize(evaluate, x0, method=name, bounds=lo_hi, options=opts)
+        jac = None
+        if search == "gradient":
+            def jac(tolls):
+                tolls = np.clip(np.asarray(tolls, dtype=np.float64).ravel(), lo_hi[:, 0],
+                                lo_hi[:, 1])
+                key = tuple(np.round(tolls, 12))
+                evaluate(tolls)
+                if key not in grads:
+                    if key != tuple(np.zeros(k)):
+                        return np.zeros(k)  # past the evaluation cap
+                    grads[key] = toll_sensitivity(fb.ue, net, groups)[0]
+                return grads[key]
+        res = minimize(evaluate, x0, method=name, jac=jac, bounds=lo_hi, options=opts)
         ok, msg = bool(res.success), str(res.message)
     value, best_tolls, eq = state["best"]
     n_evals = len(trace_cost)
@@ -719,6 +738,101 @@ def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="aut
                  "system_cost": np.array(trace_cost)},
         method=search, converged=ok, message=msg, first_best=fb,
     )
+
+
+def toll_sensitivity(eq, base, groups):
+    """Derivative of the system cost of a UE with respect to toll levels.
+
+    Parameters
+    ----------
+    eq : Equilibrium
+        A UE of ``base`` with some tolls added, solved by a route-based method (its
+        ``state`` holds route flows, as the gradient-projection method's does).
+    base : Network
+        The untolled network (its constant costs count in the system cost).
+    groups : sequence of ndarray of int
+        Link indices of each toll group (one common toll per group).
+
+    Returns
+    -------
+    gradient : ndarray of shape (n_groups,)
+        ``dZ / d toll_g``, vehicle-minutes per minute of toll.
+    dflow : ndarray of shape (n_links, n_groups)
+        ``d x / d toll_g``, vehicles per minute of toll.
+
+    Raises
+    ------
+    SolverError
+        The equilibrium carries no route flows.
+
+    Notes
+    -----
+    Sensitivity analysis of the equilibrium (Tobin & Friesz 1988) on the used routes:
+    with ``D = diag(t'(x))`` and ``M`` the link-incidence differences between each used
+    route and a reference route of its OD pair, route-flow shifts ``z`` keep every OD's
+    demand, and keeping the used routes of each OD equally costly under a toll change
+    gives ``(M^T D M) z = -M^T e_g`` (``e_g`` marks the group's links). Then
+    ``dx = M z`` and ``dZ/dtoll = (t + x t' + constant) . dx``. The system is solved by
+    conjugate gradients. The derivative assumes the set of used routes does not change
+    (strict complementarity); where a route is about to enter or leave it is one-sided.
+
+    References
+    ----------
+    .. [1] Tobin, R.L. & Friesz, T.L. (1988). Sensitivity analysis for equilibrium network
+       flow. Transportation Science 22(4), 242-250.
+    """
+    from scipy.sparse import csc_matrix
+    from scipy.sparse.linalg import LinearOperator, cg
+
+    state = eq.state
+    needed = ("od_ptr", "path_ptr", "path_links", "path_flow", "demand")
+    if state is None or not all(hasattr(state, a) for a in needed):
+        raise SolverError("toll sensitivities need route flows: solve with a route-based "
+                          "method (e.g. method='gp')")
+    m = base.n_links
+    k = len(groups)
+    model = CostModel.from_network(base)
+    x = np.asarray(eq.flow, dtype=np.float64)
+    deriv = model.derivative(x)
+    c_sys = model.time(x) + x * deriv + base.constant_cost
+    od_ptr = np.asarray(state.od_ptr)
+    path_ptr = np.asarray(state.path_ptr)
+    flow = np.asarray(state.path_flow)
+    n_routes = flow.size
+    lengths = np.diff(path_ptr)
+    od_of = np.repeat(np.arange(od_ptr.size - 1), np.diff(od_ptr))
+    demand = np.asarray(state.demand)[od_of]
+    used = flow > 1e-12 * np.maximum(demand, 1.0)
+    # reference route of each OD pair: its largest flow
+    order = np.lexsort((-flow, od_of))
+    first = np.ones(n_routes, dtype=bool)
+    first[1:] = od_of[order][1:] != od_of[order][:-1]
+    ref_of_od = np.full(od_ptr.size - 1, -1)
+    ref_of_od[od_of[order][first]] = order[first]
+    ref = ref_of_od[od_of]
+    others = np.flatnonzero(used & (np.arange(n_routes) != ref))
+    dflow = np.zeros((m, k))
+    if others.size == 0:
+        return np.zeros(k), dflow
+    incidence = csc_matrix((np.ones(path_ptr[-1]), (np.asarray(state.path_links),
+                                                   np.repeat(np.arange(n_routes), lengths))),
+                           shape=(m, n_routes))
+    diff = (incidence[:, others] - incidence[:, ref[others]]).tocsr()
+    diag = np.asarray(diff.multiply(diff).T @ deriv).ravel()
+    ridge = 1e-12 * max(float(diag.mean()), 1e-300)
+    op = LinearOperator((others.size, others.size), dtype=np.float64,
+                        matvec=lambda v: diff.T @ (deriv * (diff @ v)) + ridge * v)
+    precond = LinearOperator((others.size, others.size), dtype=np.float64,
+                             matvec=lambda v: v / (diag + ridge))
+    for j, idx in enumerate(groups):
+        e = np.zeros(m)
+        e[idx] = 1.0
+        rhs = -(diff.T @ e)
+        if not rhs.any():
+            continue
+        z, _ = cg(op, rhs, rtol=1e-12, atol=0.0, maxiter=10 * others.size + 100, M=precond)
+        dflow[:, j] = diff @ z
+    return c_sys @ dflow, dflow
 
 
 def _bounds_minutes(bounds, groups, fb_tolls, vot):

@@ -6,9 +6,10 @@ import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
+from congest import METHODS, solve
 from congest.exceptions import NetworkError, SolverError
 from congest.network import Network
-from congest.pricing import first_best, second_best
+from congest.pricing import first_best, second_best, system_cost, toll_sensitivity
 
 TOL = 1e-10
 
@@ -143,3 +144,53 @@ def test_bad_requests():
         second_best(net, [2], search="grid", first_best_result=fb)
     with pytest.raises(SolverError, match="one toll group"):
         second_best(net, [1, 2], search="bounded", first_best_result=fb)
+
+
+needs_routes = pytest.mark.skipif("gp" not in METHODS,
+                                  reason="needs a route-based equilibrium method")
+
+
+@needs_routes
+def test_toll_sensitivity_two_routes_by_hand():
+    # t1 = 8 + x1, t2 = 1 + 2 x2, demand 4, toll s on route 2: UE x1 = (1 + s) / 3, so
+    # dZ/ds = (8 + 2 x1 - 1 - 4 x2) / 3 = -7/3 at s = 0 (by hand)
+    net = parallel([8.0, 1.0], [1.0, 2.0], 4.0)
+    ue = solve(net, tol=1e-12, method="gp")
+    grad, dflow = toll_sensitivity(ue, net, [np.array([1])])
+    assert grad[0] == pytest.approx(-7.0 / 3.0, rel=1e-8)
+    assert_allclose(dflow[:, 0], [1.0 / 3.0, -1.0 / 3.0], rtol=1e-8)
+
+
+@needs_routes
+def test_toll_sensitivity_matches_finite_differences():
+    # central differences of the hand-checked three-route case at tolls (0.7, 0.2)
+    net = parallel([0.0, 1.0, 2.0], [1.0, 2.0, 1.0], 3.0)
+    groups = [np.array([0]), np.array([1])]
+
+    def cost(tolls):
+        eq = solve(net.with_tolls([tolls[0], tolls[1], 0.0]), tol=1e-13, method="gp")
+        return system_cost(eq, net), eq
+
+    at = np.array([0.7, 0.2])
+    _, eq = cost(at)
+    grad, _ = toll_sensitivity(eq, net, groups)
+    h = 1e-5
+    fd = [(cost(at + h * e)[0] - cost(at - h * e)[0]) / (2 * h) for e in np.eye(2)]
+    assert_allclose(grad, fd, rtol=1e-6)
+
+
+@needs_routes
+def test_gradient_search_reaches_so():
+    net = parallel([0.0, 1.0, 2.0], [1.0, 2.0, 1.0], 3.0)
+    sb = second_best(net, [1, 2], tol=1e-12, method="gp", search="gradient")
+    assert sb.share_of_first_best == pytest.approx(1.0, abs=1e-8)
+    assert_allclose(sb.tolls_minutes, [1.0, 0.5], atol=1e-4)
+    # the derivative saves solves: far fewer than the derivative-free search
+    assert sb.evaluations < 20
+
+
+def test_sensitivity_needs_routes():
+    net = parallel([8.0, 1.0], [1.0, 2.0], 4.0)
+    ue = solve(net, tol=1e-8, method="bfw")
+    with pytest.raises(SolverError, match="route flows"):
+        toll_sensitivity(ue, net, [np.array([1])])

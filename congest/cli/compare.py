@@ -11,7 +11,18 @@ import click
 from ._common import friendly_errors
 from .solve import check_paths, load_network, network_options
 
-__all__ = ["command", "write_comparison", "comparison_json"]
+__all__ = ["command", "write_comparison", "comparison_json", "default_gap"]
+
+#: Link-based methods: they stall long before a relative gap of 1e-10.
+LINK_BASED = ("msa", "fw", "cfw", "bfw")
+
+
+def default_gap(method):
+    """Gap target used when none is given: tight unless the method is link-based."""
+    from ..equilibrium import DEFAULT_METHOD
+
+    name = DEFAULT_METHOD if method == "auto" else method
+    return 1e-5 if name in LINK_BASED else 1e-10
 
 #: Columns printed on screen: (table column, header, format).
 SHOWN = (
@@ -127,8 +138,10 @@ def render_table(cmp):
 @click.option("--out-dir", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for scenarios.csv, scenarios.json and links/<scenario>.csv. "
                    "Default: <network>-compare in the current folder.")
-@click.option("--gap", type=float, default=1e-10, show_default=True,
-              help="Target relative gap of every equilibrium solve.")
+@click.option("--gap", type=float, default=None,
+              help="Target relative gap of every equilibrium solve. Default: 1e-10, or "
+                   "1e-5 with a link-based method (msa, fw, cfw, bfw), which stall "
+                   "before tighter gaps.")
 @click.option("--method", default="auto", show_default=True,
               help="Equilibrium method: auto, or one of congest.METHODS.")
 @click.option("--max-iter", type=click.IntRange(min=1), default=None,
@@ -165,6 +178,7 @@ def command(network, advice_share, plans, out_dir, gap, method, max_iter, days, 
 
     if burn_in >= days - 1:
         raise InputError("--burn-in must be smaller than --days minus 1", value=burn_in)
+    gap = default_gap(method) if gap is None else gap
     net, layout = load_network(network, **net_opts)
     check_paths(net, layout)
     toll_plans = [read_toll_plan(p, net) for p in plans]

@@ -8,6 +8,7 @@ from pathlib import Path
 import click
 
 from ._common import friendly_errors
+from .compare import default_gap
 from .solve import check_paths, load_network, network_options
 
 __all__ = ["command", "parse_groups", "parse_classes"]
@@ -95,11 +96,13 @@ def parse_classes(values):
               help="Second best: highest toll searched, money per vehicle. Default: twice "
                    "the largest first-best toll.")
 @click.option("--search",
-              type=click.Choice(["auto", "bounded", "powell", "nelder-mead", "l-bfgs-b"]),
+              type=click.Choice(["auto", "bounded", "powell", "nelder-mead", "l-bfgs-b",
+                                 "gradient"]),
               default="auto", show_default=True,
               help="Second best: search over toll levels (auto: bounded scalar search "
                    "for one group, Powell for several; l-bfgs-b: quasi-Newton on "
-                   "finite-difference gradients, for tight gaps).")
+                   "finite-difference gradients; gradient: quasi-Newton on the "
+                   "equilibrium's sensitivity, needs a route-based method such as gp).")
 @click.option("--max-evals", type=click.IntRange(min=2), default=200, show_default=True,
               help="Second best: cap on equilibrium solves.")
 @click.option("--class", "class_specs", multiple=True, metavar="NAME:SHARE:VOT",
@@ -108,8 +111,10 @@ def parse_classes(values):
                    "and who pays under the tolls (<out>-classes.csv).")
 @click.option("--out", "out", type=click.Path(dir_okay=False), default=None,
               help="Toll table CSV. Default: <network>-tolls.csv in the current folder.")
-@click.option("--gap", type=float, default=1e-10, show_default=True,
-              help="Target relative gap of every equilibrium solve.")
+@click.option("--gap", type=float, default=None,
+              help="Target relative gap of every equilibrium solve. Default: 1e-10, or "
+                   "1e-5 with a link-based method (msa, fw, cfw, bfw), which stall "
+                   "before tighter gaps.")
 @click.option("--method", default="auto", show_default=True,
               help="Equilibrium method: auto, or one of congest.METHODS.")
 @click.option("--max-iter", type=click.IntRange(min=1), default=None,
@@ -138,6 +143,7 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, clas
     from ..io.atomic import atomic_write
     from ..pricing import first_best, second_best
 
+    gap = default_gap(method) if gap is None else gap
     net, layout = load_network(network, **net_opts)
     check_paths(net, layout)
     groups = parse_groups(net, on_links, on_attribute)
