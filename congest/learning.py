@@ -393,7 +393,7 @@ def _split_drivers(demand, n):
 def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta=1.0,
              cost_scale="ue", information="full", advice_share=0.0, supply_noise=0.0,
              estimate_noise=0.0, drivers=None, initial="uniform", route_set=None, k=3,
-             max_routes=None, equilibrium=None, ue_tol=1e-4, replications=1, seed=None,
+             max_routes=None, equilibrium=None, ue_tol=1e-8, replications=1, seed=None,
              track=(), gap_every=1, gap_target=1e-3, workers=None) -> LearningResult:
     """Simulate day-to-day route choice learning on ``network``.
 
@@ -436,7 +436,7 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
         Passed to :func:`~congest.routesets.build_route_set`.
     equilibrium : Equilibrium, optional
         UE solution of ``network`` (default ``solve(network, tol=ue_tol)``).
-    ue_tol : float, default 1e-4
+    ue_tol : float, default 1e-8
     replications : int, default 1
     seed : int, SeedSequence or None
     track : sequence of (origin id, destination id), default ()

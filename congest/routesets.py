@@ -565,50 +565,27 @@ def k_shortest_paths(network, cost, k, *, pairs=None, batch=2048):
 
 # ------------------------------------------------------------------ route set builder
 def _used_routes(equilibrium):
-    """Used routes of a precise solution, ``{(o, d): (routes, flows)}``; None if unknown."""
-    try:
-        from .routes import route_flows
-    except ImportError:
-        return None
-    try:
-        table = route_flows(equilibrium)
-    except Exception:  # a solution without route information (e.g. Frank-Wolfe)
-        return None
-    return _parse_route_table(equilibrium.network, table)
+    """Used routes of a route-based solution, ``{(o, d): (routes, flows)}``.
 
+    None when the solution keeps no routes (link-based methods such as Frank-Wolfe).
+    """
+    from .exceptions import SolverError
+    from .routes import route_flows
 
-def _parse_route_table(network, table):
-    """Accept the route-flow table of :mod:`congest.routes` in its documented forms."""
-    if table is None:
+    try:
+        rf = route_flows(equilibrium)
+    except SolverError:
         return None
     out = {}
-    if isinstance(table, dict):
-        for key, val in table.items():
-            routes, flows = val
-            out[tuple(int(x) for x in key)] = ([np.asarray(r, np.int64) for r in routes],
-                                               list(map(float, flows)))
-        return out
-    # a DataFrame with origin/destination zone indices, links and flow
-    cols = set(getattr(table, "columns", []))
-    if {"links", "flow"} <= cols:
-        o_col = "origin_index" if "origin_index" in cols else "origin"
-        d_col = "destination_index" if "destination_index" in cols else "destination"
-        by_id = o_col == "origin"
-        zone = {int(z): i for i, z in enumerate(network.zone_ids)}
-        for row in table.itertuples(index=False):
-            o = getattr(row, o_col)
-            d = getattr(row, d_col)
-            if by_id:
-                o, d = zone[int(o)], zone[int(d)]
-            links = np.asarray(row.links, dtype=np.int64)
-            r, f = out.setdefault((int(o), int(d)), ([], []))
-            r.append(links)
-            f.append(float(row.flow))
-        return out
-    return None
+    for i in range(rf.n_od):
+        lo, hi = rf.od_ptr[i], rf.od_ptr[i + 1]
+        out[(int(rf.origin[i]), int(rf.destination[i]))] = (
+            [rf.links(r).astype(np.int64) for r in range(lo, hi)],
+            rf.flow[lo:hi].tolist())
+    return out
 
 
-def build_route_set(network, *, k=3, max_routes=None, equilibrium=None, tol=1e-5,
+def build_route_set(network, *, k=3, max_routes=None, equilibrium=None, tol=1e-8,
                     min_share=1e-6) -> RouteSet:
     """Route set of a network: UE used routes plus k shortest paths.
 
@@ -622,8 +599,9 @@ def build_route_set(network, *, k=3, max_routes=None, equilibrium=None, tol=1e-5
         Cap on routes per OD pair. Used UE routes come first (largest flow first), then
         the others by UE cost.
     equilibrium : Equilibrium, optional
-        A UE solution of ``network``; default ``solve(network, tol=tol)``.
-    tol : float, default 1e-5
+        A UE solution of ``network``; default ``solve(network, tol=tol)`` with the
+        default (route-based) method, whose used routes then enter the set.
+    tol : float, default 1e-8
         Relative gap for the equilibrium solved here.
     min_share : float, default 1e-6
         Used routes carrying less than this share of their OD demand are not counted as
@@ -632,15 +610,14 @@ def build_route_set(network, *, k=3, max_routes=None, equilibrium=None, tol=1e-5
     Returns
     -------
     RouteSet
-        With ``ue_route_flow`` from the precise solution when it provides route flows;
-        otherwise the UE link flows are split over the UE-cost shortest paths only in
-        the sense that ``ue_route_flow`` stays zero.
+        With ``ue_route_flow`` from the solution when it keeps route flows (zeros for a
+        link-based solution such as Frank-Wolfe).
 
     Notes
     -----
     At a user equilibrium every used route of an OD pair has the minimal UE cost, so the
     ``k`` shortest paths at UE costs contain the used routes when ``k`` is at least
-    their number; the precise solver's route flows make this exact.
+    their number; the route flows of a route-based solution make this exact.
 
     Examples
     --------
