@@ -586,7 +586,11 @@ def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="aut
         per group and gradient, step ``xtol``); ``"gradient"`` is the same method on
         the equilibrium's sensitivity (:func:`toll_sensitivity`: one solve per
         gradient whatever the number of groups; needs a route-based equilibrium method
-        such as ``"gp"``). Both need the tight gaps of a precise solver.
+        such as ``"gp"``). Both need the tight gaps of a precise solver, and both
+        stop where the system cost is locally flat in the tolls: when no OD pair is
+        split between tolled and untolled routes a small toll change moves nobody
+        (common on networks with few zones); the derivative-free searches step over
+        such flats.
     xtol : float, default 1e-4
         Toll tolerance of the search, minutes.
     max_evals : int, default 200
