@@ -201,12 +201,17 @@ class ShortestPaths:
             Shortest-path cost between zones; NaN rows for origins without demand,
             inf where no path exists.
         """
-        demand = self.network.demand if demand is None else np.asarray(demand, np.float64)
+        if demand is None:
+            demand, origins = self.network.demand, self.origins
+        else:
+            # trees are grown from the origins of *this* demand, not the network's
+            demand = np.ascontiguousarray(demand, dtype=np.float64)
+            origins = np.flatnonzero(demand.sum(axis=1) > 0).astype(np.int64)
         cost = np.ascontiguousarray(cost, dtype=np.float64)
-        n_chunks = max(1, min(numba.get_num_threads(), self.origins.size))
-        args = (self.origins, self.zone_nodes, np.ascontiguousarray(demand), self.indptr,
+        n_chunks = max(1, min(numba.get_num_threads(), origins.size))
+        args = (origins, self.zone_nodes, np.ascontiguousarray(demand), self.indptr,
                 self.adj_link, self.adj_head, self.tail, cost, self.blocked)
-        if n_chunks == 1 or self.origins.size * self.tail.size < PARALLEL_MIN_WORK:
+        if n_chunks == 1 or origins.size * self.tail.size < PARALLEL_MIN_WORK:
             flows, od_cost = _aon_serial(*args)
         else:
             flows, od_cost = _aon_all(*args, n_chunks)

@@ -182,3 +182,19 @@ def test_aon_on_a_tree_is_unique():
     flow, od_cost = ShortestPaths(net).all_or_nothing(net.free_flow_time)
     assert flow.tolist() == [10.0, 4.0, 6.0]
     assert od_cost[0].tolist() == [0.0, 3.0, 4.0]
+
+
+def test_loading_another_demand_uses_its_origins():
+    # Demand passed to all_or_nothing may have origins the network's own demand lacks.
+    net, cost = random_graph(11, through_centroids=True)
+    other = np.zeros_like(net.demand)
+    other[net.n_zones - 1, 0] = 5.0
+    own = net.demand.copy()
+    own[net.n_zones - 1] = 0.0
+    net = net.replace(demand=own)
+    flow, od_cost = ShortestPaths(net).all_or_nothing(cost, other)
+    expected, expected_cost = ShortestPaths(net.replace(demand=other)).all_or_nothing(cost)
+    assert_allclose(flow, expected, rtol=0)
+    assert_allclose(od_cost, expected_cost, rtol=0)
+    if np.isfinite(expected_cost[net.n_zones - 1, 0]):
+        assert flow.sum() > 0
