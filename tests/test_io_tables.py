@@ -129,3 +129,22 @@ def test_zero_capacity_on_polynomial_link_is_an_error(tmp_path):
     with pytest.raises(InputError, match="capacity is zero") as err:
         read_tables(*tables(tmp_path, links=links, od="origin,destination,volume\n1,2,1\n"))
     assert (err.value.row, err.value.column) == (2, "capacity")
+
+
+def test_bom_crlf_and_spaces_are_accepted(tmp_path):
+    links = "\ufefffrom_node, to_node ,capacity,free_flow_time\r\n1, 2 ,1000,5\r\n2,3,1000,5\r\n"
+    net = read_tables(*tables(tmp_path, links=links, od="origin,destination,volume\r\n1,3,50\r\n"))
+    assert net.n_links == 2 and net.total_demand == 50
+
+
+def test_row_longer_than_header_is_an_error(tmp_path):
+    with pytest.raises(InputError, match="row has 4 cells but the header has 3") as err:
+        read_tables(*tables(tmp_path, od="origin,destination,volume\n1,2,5\n2,1,3,4\n"))
+    assert err.value.row == 3 and err.value.path.endswith("demand.csv")
+
+
+def test_file_that_is_not_text_is_an_error(tmp_path):
+    links, od = tables(tmp_path)
+    od.write_bytes(b"origin,destination,volume\n1,2,\xff\n")
+    with pytest.raises(InputError, match="not UTF-8"):
+        read_tables(links, od)

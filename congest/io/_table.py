@@ -6,6 +6,8 @@ is row 2.
 
 from __future__ import annotations
 
+import csv
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -42,12 +44,20 @@ class Table:
         if not self.path.is_file():
             raise InputError(f"{what} not found", path=self.path)
         try:
-            frame = pd.read_csv(self.path, dtype=str, keep_default_na=False,
-                                skipinitialspace=True, encoding="utf-8-sig")
+            with warnings.catch_warnings():
+                # a row longer than the header: pandas only warns and drops cells
+                warnings.simplefilter("error", pd.errors.ParserWarning)
+                frame = pd.read_csv(self.path, dtype=str, keep_default_na=False,
+                                    skipinitialspace=True, encoding="utf-8-sig",
+                                    index_col=False)
         except pd.errors.EmptyDataError as err:
             raise InputError(f"{what} is empty (no header row)", path=self.path) from err
-        except (pd.errors.ParserError, UnicodeDecodeError) as err:
+        except (pd.errors.ParserError, pd.errors.ParserWarning) as err:
+            self._long_row(err)
             raise InputError(f"{what} is not a readable CSV file: {err}",
+                             path=self.path) from err
+        except UnicodeDecodeError as err:
+            raise InputError(f"{what} is not UTF-8 text: {err.reason}",
                              path=self.path) from err
         frame.columns = [str(c).strip() for c in frame.columns]
         dup = frame.columns[frame.columns.duplicated()]
@@ -58,6 +68,17 @@ class Table:
         self.frame = pd.DataFrame({c: [v.strip() for v in frame[c].to_numpy(dtype=object)]
                                    for c in frame.columns}, index=frame.index, dtype=object)
         self.n_rows = len(frame)
+
+    def _long_row(self, err):
+        """Raise an InputError naming the first row with more cells than the header."""
+        with open(self.path, newline="", encoding="utf-8-sig") as fh:
+            reader = csv.reader(fh, skipinitialspace=True)
+            header = next(reader, [])
+            for number, cells in enumerate(reader, start=2):
+                if len(cells) > len(header):
+                    raise InputError(f"row has {len(cells)} cells but the header has "
+                                     f"{len(header)} columns", path=self.path,
+                                     row=number, value=",".join(cells)) from err
 
     @property
     def columns(self):
