@@ -38,7 +38,7 @@ def parse_groups(net, on_links, on_attribute):
             except ValueError:
                 raise InputError("--on takes link ids separated by commas",
                                  value=part) from None
-            if int(part) not in net._link_lookup:
+            if int(part) not in set(net.link_ids.tolist()):
                 raise InputError("--on names a link the network does not have", value=part)
         if not ids:
             raise InputError("--on needs at least one link id", value=text)

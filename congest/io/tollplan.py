@@ -33,7 +33,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..exceptions import InputError
+from ..exceptions import InputError, NetworkError
 from ..pricing import TollPlan
 from ._table import Table
 
@@ -125,8 +125,9 @@ def read_toll_plan(path, network, *, name=None) -> TollPlan:
             except ValueError:
                 table.fail("link_id is not a whole number", index=i, column="link_id",
                            value=link_text[i])
-            idx = network._link_lookup.get(link_id)
-            if idx is None:
+            try:
+                idx = network.link_index(link_id)
+            except NetworkError:
                 table.fail("no link with this id in the network", index=i, column="link_id",
                            value=link_text[i])
             out[idx] = charge[i]
