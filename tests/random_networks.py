@@ -14,7 +14,7 @@ from congest.network import Network
 
 def random_network(rng, *, n_core=None, n_zones=None, through_centroids=False,
                    betas=(1.0, 2.0, 4.0), zero_alpha=0.2, fixed_cost=False,
-                   demand_density=0.7, load=1.0) -> Network:
+                   demand_density=0.7, load=1.0, kinds=(0,)) -> Network:
     """A random strongly connected BPR network with a few zones.
 
     Parameters
@@ -33,6 +33,9 @@ def random_network(rng, *, n_core=None, n_zones=None, through_centroids=False,
         Share of OD pairs with demand.
     load : float
         Scales demand relative to capacities (about 1 means near capacity).
+    kinds : tuple of int, default (0,)
+        Cost-function kinds to draw from (0 BPR, 1 conical with alpha in [2, 6],
+        2 polynomial).
     """
     n_core = int(rng.integers(4, 9)) if n_core is None else n_core
     n_zones = int(rng.integers(2, 5)) if n_zones is None else n_zones
@@ -64,6 +67,10 @@ def random_network(rng, *, n_core=None, n_zones=None, through_centroids=False,
     if demand.sum() == 0.0:
         demand[0, 1] = 30.0
     alpha = rng.uniform(0.1, 1.0, m) * (rng.random(m) >= zero_alpha)
+    kind = 0
+    if tuple(kinds) != (0,):  # extra draws only here, so BPR streams stay as they were
+        kind = rng.choice(np.asarray(kinds, np.int8), m)
+        alpha = np.where(kind == 1, rng.uniform(2.0, 6.0, m), alpha)
     return Network(
         node_ids=np.arange(1, n_zones + n_core + 1),
         tail=tail, head=head,
@@ -73,5 +80,5 @@ def random_network(rng, *, n_core=None, n_zones=None, through_centroids=False,
         beta=rng.choice(np.asarray(betas, float), m),
         fixed_cost=rng.uniform(0.0, 3.0, m) if fixed_cost else 0.0,
         zone_ids=np.arange(1, n_zones + 1), zone_nodes=zones, demand=demand,
-        through_centroids=through_centroids, name="random",
+        cost_kind=kind, through_centroids=through_centroids, name="random",
     )

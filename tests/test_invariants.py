@@ -36,6 +36,8 @@ network_options = st.fixed_dictionaries({
     "fixed_cost": st.booleans(),
     "load": st.sampled_from([0.5, 1.0, 2.0, 3.0]),
     "zero_alpha": st.sampled_from([0.0, 0.2, 0.5]),
+    # BPR (1964), conical (Spiess 1990) and polynomial costs
+    "kinds": st.sampled_from([(0,), (0, 1, 2)]),
 })
 
 
