@@ -26,14 +26,14 @@ def two_link(const, alpha, beta, demand=1.0):
 
 
 def pigou(d=1):
-    # Pigou (1920), as in Roughgarden & Tardos (2002), JACM 49(2), fig. 1: two links
-    # s -> t, cost 1 and cost x**d, one unit of demand.
+    # Pigou (1920), as in Roughgarden & Tardos (2002), JACM 49(2) (from memory): two
+    # links s -> t, cost 1 and cost x**d, one unit of demand.
     return two_link([1.0, 0.0], [0.0, 1.0], [0.0, float(d)])
 
 
 def braess(with_bridge):
     # Braess (1968); Braess, Nagurney & Wakolbinger (2005), Transportation Science 39(4),
-    # fig. 1-2: nodes 1 (origin), 2, 3, 4 (destination); demand 6;
+    # figures 1-2 (from memory): nodes 1 (origin), 2, 3, 4 (destination); demand 6;
     # links 1->2: 10x, 1->3: 50 + x, 2->4: 50 + x, 3->4: 10x, and the new link 2->3: 10 + x.
     tail, head = [0, 0, 1, 2], [1, 2, 3, 3]
     t0, a = [0.0, 50.0, 50.0, 0.0], [10.0, 1.0, 1.0, 10.0]
@@ -54,7 +54,7 @@ def _solve(net, objective):
 
 
 def test_pigou_linear():
-    # Roughgarden & Tardos (2002), section 1.1: UE sends everything on the x link,
+    # Roughgarden & Tardos (2002), introduction (from memory): UE sends everything on the x link,
     # cost 1; SO splits 1/2-1/2, cost 3/4; price of anarchy 4/3.
     ue, so = _solve(pigou(), "ue"), _solve(pigou(), "so")
     assert_allclose(ue.flow, [0.0, 1.0], atol=1e-6)
@@ -71,7 +71,7 @@ def test_pigou_quartic_price_of_anarchy():
     # so (d+1) x**d = 1, x = (d+1)**(-1/d), total 1 - d/(d+1) x = 1 - d (d+1)**(-(d+1)/d).
     d = 4
     bound = 1.0 / (1.0 - d * (d + 1) ** (-(d + 1) / d))
-    assert_allclose(bound, 2.1505, atol=5e-5)  # value quoted by Roughgarden (2003)
+    assert_allclose(bound, 2.1505, atol=5e-5)  # value quoted by Roughgarden (2003) (from memory)
     ue, so = _solve(pigou(d), "ue"), _solve(pigou(d), "so")
     assert_allclose(so.flow[1], (d + 1) ** (-1 / d), rtol=1e-6)
     assert_allclose(ue.total_cost, 1.0, rtol=1e-6)
@@ -81,7 +81,7 @@ def test_pigou_quartic_price_of_anarchy():
 @pytest.mark.parametrize("with_bridge,route_cost,total", [(False, 83.0, 498.0),
                                                           (True, 92.0, 552.0)])
 def test_braess_paradox(with_bridge, route_cost, total):
-    # Braess, Nagurney & Wakolbinger (2005), section 2: 3 trips on each of the two
+    # Braess, Nagurney & Wakolbinger (2005) (from memory): 3 trips on each of the two
     # routes cost 10*3 + 50 + 3 = 83 (total 498); with the new link each of the three
     # routes carries 2 and costs 10*4 + 10 + 2 + 10*4 = 92 (total 552).
     net = braess(with_bridge)

@@ -2,7 +2,8 @@
 
 Sources: BPR function t = t0 (1 + alpha (v/c)**beta) (Bureau of Public Roads 1964,
 Traffic Assignment Manual); conical function (Spiess 1990, Transportation Science 24(2),
-153-158, eq. (3) and properties (i)-(vi): f(0) = 1, f(1) = 2, f'(1) = alpha).
+153-158: f(0) = 1, f(1) = 2, f'(1) = alpha, increasing and convex; equation and
+property numbering not cited, from memory).
 Derivatives are checked against central finite differences and integrals against
 ``scipy.integrate.quad`` (general-purpose numerical routines, not project code).
 """
@@ -49,12 +50,12 @@ def _reference_time(kind, t0, a, b, c, v):
         return t0 * (1.0 + a * x**b)
     if kind == POLY:
         return t0 + a * x**b
-    g = (2 * a - 1) / (2 * a - 2)  # Spiess 1990, eq. (3): beta = (2 alpha - 1)/(2 alpha - 2)
+    g = (2 * a - 1) / (2 * a - 2)  # Spiess 1990: beta = (2 alpha - 1)/(2 alpha - 2)
     return t0 * (2 + math.sqrt(a**2 * (1 - x) ** 2 + g**2) - a * (1 - x) - g)
 
 
 def test_time_matches_defining_formulas():
-    # BPR 1964; Spiess 1990 eq. (3); polynomial t0 + alpha (v/c)**beta.
+    # BPR 1964; Spiess 1990; polynomial t0 + alpha (v/c)**beta.
     rng = np.random.default_rng(0)
     kind, t0, alpha, beta, cap = _random_links(rng)
     v = rng.uniform(0.0, 2.5, kind.size) * cap
@@ -75,7 +76,7 @@ def test_bpr_standard_values():
 
 @pytest.mark.parametrize("alpha", [1.5, 4.0, 10.0])
 def test_conical_properties(alpha):
-    # Spiess 1990, section 2: f(0) = 1 (free flow), f(1) = 2 (twice free flow at capacity),
+    # Spiess 1990 (from memory): f(0) = 1 (free flow), f(1) = 2 (twice free flow at capacity),
     # f'(1) = alpha (steepness at capacity); f is increasing and convex.
     t0, c = 7.0, 1800.0
     m = _model(CONICAL, t0, alpha, 0.0, c)

@@ -3,7 +3,7 @@
 The reference is the textbook convex program, written here independently of congest:
 
 * UE (Beckmann, McGuire & Winsten 1956, "Studies in the Economics of Transportation";
-  Sheffi 1985, "Urban Transportation Networks", ch. 3): minimise
+  Sheffi 1985, "Urban Transportation Networks", ch. 3, from memory): minimise
   ``sum_a integral_0^{x_a} c_a(u) du``;
 * SO: minimise total cost ``sum_a x_a c_a(x_a)``;
 

@@ -1,7 +1,7 @@
 """Properties every equilibrium must have, over many random networks (hypothesis).
 
 * Flow conservation at every node and non-negative flows (definition of a feasible
-  assignment; Sheffi 1985, "Urban Transportation Networks", ch. 3).
+  assignment; Sheffi 1985, "Urban Transportation Networks", ch. 3, from memory).
 * Relative gap ``(TSTT - SPTT)/TSTT >= 0``: shortest paths are never dearer than the
   paths in use (common practice).
 * SO total cost <= UE total cost (the SO minimises it; Beckmann, McGuire & Winsten 1956),

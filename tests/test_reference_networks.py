@@ -6,7 +6,7 @@ Sioux Falls (LeBlanc, Morlok & Pierskalla 1975), Anaheim, Barcelona, Winnipeg an
 Chicago Sketch (Eash, Chon, Lee & Boyce 1983). Tests skip when the folder is absent.
 
 How close a solution with relative gap ``g`` must be to the UE ``x*`` (convexity of the
-Beckmann objective ``f``; e.g. Patriksson 1994, "The Traffic Assignment Problem", ch. 2):
+Beckmann objective ``f``; Patriksson 1994, "The Traffic Assignment Problem", ch. 2, from memory):
 
 * ``G = TSTT - SPTT = g * TSTT`` is the Frank-Wolfe duality gap, so
   ``0 <= f(x) - f(x*) <= G``.
