@@ -90,8 +90,8 @@ def _step(progress, name):
 
 
 def build_report(network, *, tol=1e-6, method="auto", advice_share=0.5, toll_plans=(),
-                 sweep_levels=None, learning_days=0, learning_replications=5, seed=0,
-                 progress=None) -> Report:
+                 sweep_levels=None, learning_days=0, learning_replications=5,
+                 learning_noise=0.1, seed=0, progress=None) -> Report:
     """Solve the scenarios and draw the report's charts.
 
     Parameters
@@ -108,6 +108,9 @@ def build_report(network, *, tol=1e-6, method="auto", advice_share=0.5, toll_pla
     learning_days : int, default 0
         Days of a Hedge learning simulation for a learning chart (0: none).
     learning_replications : int, default 5
+    learning_noise : float, default 0.1
+        Day-to-day capacity noise (coefficient of variation) of the simulation, so that
+        replications differ and their spread shows.
     seed : int, default 0
         Seed of the learning simulation.
     progress : callable, optional
@@ -146,8 +149,11 @@ def build_report(network, *, tol=1e-6, method="auto", advice_share=0.5, toll_pla
 
             _step(progress, "learning")
             ue = cmp.results["first_best"].ue
+            o, d = np.unravel_index(int(np.argmax(net.demand)), net.demand.shape)
             learning_result = simulate(net, rule="hedge", days=int(learning_days),
                                        replications=int(learning_replications), seed=seed,
+                                       supply_noise=float(learning_noise),
+                                       track=[(int(net.zone_ids[o]), int(net.zone_ids[d]))],
                                        equilibrium=ue if ue.state is not None else None)
     _step(progress, "charts")
     charts = _charts(net, cmp, sweep_result, learning_result, notes, SolverError, tol)
@@ -220,8 +226,9 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
         charts.append(Chart("learning", plotting.learning_chart(
                             learning_result, ue_total=ue.total_travel_time),
                             "Day-to-day learning",
-                            "Drivers learning routes from daily travel times (Hedge rule); "
-                            "median and 10-90% band over replications."))
+                            "Drivers learning routes from daily travel times (Hedge rule) "
+                            "with day-to-day capacity noise; median and 10-90% band over "
+                            "replications; route shares of the busiest OD pair."))
     return charts
 
 

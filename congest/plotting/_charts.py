@@ -46,6 +46,23 @@ def _titles(fig, title, subtitle, *, top=0.84):
     fig.subplots_adjust(top=top)
 
 
+def _tidy_log_y(ax):
+    """Plain tick labels on a log axis (0.03, 1e-05); minor labels only on short spans."""
+    from matplotlib.ticker import FuncFormatter, NullFormatter
+
+    lo, hi = ax.get_ylim()
+    plain = FuncFormatter(lambda v, _: f"{v:g}")
+
+    def two_and_five(v, _):
+        mantissa = round(v / 10.0 ** math.floor(math.log10(v)), 6) if v > 0 else 0
+        return f"{v:g}" if mantissa in (2.0, 5.0) else ""
+
+    ax.yaxis.set_major_formatter(plain)
+    short = lo > 0 and hi / lo < 30
+    ax.yaxis.set_minor_formatter(FuncFormatter(two_and_five) if short else NullFormatter())
+    ax.tick_params(axis="y", which="minor", labelsize=7.5)
+
+
 def _label(ax, xlabel, ylabel):
     ax.set_xlabel(xlabel, fontsize=9, color=_INK)
     ax.set_ylabel(ylabel, fontsize=9, color=_INK)
@@ -127,6 +144,8 @@ def convergence_chart(results, *, tol=None, title="Convergence", figsize=(11.0, 
             ax.text(1.0, tol, f" target {tol:.0e}", transform=ax.get_yaxis_transform(),
                     fontsize=7.5, color=_MUTED, va="bottom", ha="right")
         ax.grid(True, axis="x", color="#f0f2f4", lw=0.6)
+    _tidy_log_y(ax_it)
+    _tidy_log_y(ax_t)
     _label(ax_it, "Iteration" + (" (log scale)" if ax_it.get_xscale() == "log" else ""),
            "Relative gap (log scale)")
     _label(ax_t, "Time since the solve started, seconds"
@@ -179,12 +198,14 @@ def sweep_chart(table, *, currency="money", title="Demand sweep", figsize=(9.0, 
     if ok.any():
         i = int(np.nanargmax(np.where(ok, poa, -np.inf)))
         ax_p.plot([x[i]], [poa[i]], marker="o", ms=7, mfc="none", mec=PALETTE[1], mew=1.5)
-        ax_p.annotate(f"peak {poa[i]:.4f}\nat demand x{_fmt(x[i])}", (x[i], poa[i]),
-                      xytext=(8, -4), textcoords="offset points", fontsize=8, color=_INK,
-                      va="top")
+        right_half = x[i] > (x.min() + x.max()) / 2
+        ax_p.annotate(f"peak {poa[i]:.4f} at demand x{_fmt(x[i])}", (x[i], poa[i]),
+                      xytext=(-8 if right_half else 8, 9), textcoords="offset points",
+                      fontsize=8, color=_INK, va="bottom",
+                      ha="right" if right_half else "left")
         sub = f"peak price of anarchy {poa[i]:.4f} at demand x{_fmt(x[i])}"
         top = float(np.nanmax(poa))
-        ax_p.set_ylim(min(0.995, float(np.nanmin(poa))), 1.0 + (top - 1.0) * 1.25 + 1e-3)
+        ax_p.set_ylim(min(0.995, float(np.nanmin(poa))), 1.0 + (top - 1.0) * 1.35 + 2e-3)
     _label(ax_p, "", "Price of anarchy\n(UE / SO system cost)")
     if "first_best_revenue" in table:
         for k, (key, grp) in enumerate(groups):
@@ -292,6 +313,7 @@ def learning_chart(days, *, ue_total=None, route_shares=None, title="Day-to-day 
     frame["gap_shown"] = frame["relative_gap"].where(frame["relative_gap"] > 0)
     _spread(axes[1], frame, "day", "gap_shown", PALETTE[2], "relative gap")
     axes[1].set_yscale("log")
+    _tidy_log_y(axes[1])
     _label(axes[1], "", "Relative gap of the\nday's flows (log)")
     if n_rows == 3:
         shares = _route_labels(route_shares)
@@ -309,6 +331,11 @@ def learning_chart(days, *, ue_total=None, route_shares=None, title="Day-to-day 
         else float("nan")
     sub = (f"{int(frame['day'].max())} days  ·  {n_rep} replication(s)  ·  final relative "
            f"gap {final:.1e}" + (" (median)" if n_rep > 1 else ""))
+    if n_rows == 3 and {"origin", "destination"} <= set(route_shares):
+        pairs = route_shares[["origin", "destination"]].drop_duplicates()
+        if len(pairs) == 1:
+            o, d = pairs.iloc[0]
+            sub += f"  ·  route shares from zone {o} to zone {d}"
     _titles(fig, title, sub, top=0.88)
     fig.subplots_adjust(left=0.12, right=0.97, bottom=0.07, hspace=0.12)
     return fig
