@@ -85,7 +85,7 @@ SCHEDULES = {"constant": lambda n: 1.0, "sqrt": lambda n: 1.0 / np.sqrt(n),
              "harmonic": lambda n: 1.0 / n}
 INFORMATION = ("full", "experience")
 #: Default ``(rate, schedule)`` of each rule.
-DEFAULTS = {"hedge": (1.0, "sqrt"), "logit": (0.3, "constant"),
+DEFAULTS = {"hedge": (10.0, "sqrt"), "logit": (0.3, "constant"),
             "best_response": (0.1, "constant"), "smith": (0.5, "constant")}
 
 
