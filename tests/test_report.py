@@ -48,13 +48,25 @@ def report(city):
                         learning_replications=2)
 
 
+@pytest.fixture(scope="module")
+def linked(report, tmp_path_factory):
+    out = tmp_path_factory.mktemp("linked")
+    return out, write_report(report, out, embed=False)
+
+
+@pytest.fixture(scope="module")
+def embedded(report, tmp_path_factory):
+    out = tmp_path_factory.mktemp("embedded")
+    write_report(report, out)
+    return out
+
+
 def image_sources(page):
     return re.findall(r'<img src="([^"]+)"', page)
 
 
-def test_html_references_only_images_that_exist(report, tmp_path):
-    written = write_report(report, tmp_path / "linked", embed=False)
-    out = tmp_path / "linked"
+def test_html_references_only_images_that_exist(report, linked):
+    out, written = linked
     page = (out / "report.html").read_text()
     sources = image_sources(page)
     assert len(sources) == len(report.charts) >= 8
@@ -68,9 +80,8 @@ def test_html_references_only_images_that_exist(report, tmp_path):
     assert {p.name for p in written} == {p.name for p in out.iterdir()}
 
 
-def test_embedded_page_stands_alone(report, tmp_path):
-    write_report(report, tmp_path)
-    page = (tmp_path / "report.html").read_text()
+def test_embedded_page_stands_alone(report, embedded):
+    page = (embedded / "report.html").read_text()
     sources = image_sources(page)
     assert len(sources) == len(report.charts)
     for src in sources:
@@ -79,8 +90,8 @@ def test_embedded_page_stands_alone(report, tmp_path):
         assert base64.b64decode(data).startswith(b"\x89PNG")
 
 
-def test_page_and_summary_carry_the_cautions(report, tmp_path):
-    write_report(report, tmp_path)
+def test_page_and_summary_carry_the_cautions(embedded):
+    tmp_path = embedded
     page = (tmp_path / "report.html").read_text()
     md = (tmp_path / "summary.md").read_text()
     for caution in CAUTIONS:
@@ -89,8 +100,8 @@ def test_page_and_summary_carry_the_cautions(report, tmp_path):
     assert "planning-level" in page and "not for operational control or safety design" in page
 
 
-def test_table_and_geojson_match_the_comparison(report, city, tmp_path):
-    write_report(report, tmp_path)
+def test_table_and_geojson_match_the_comparison(report, embedded):
+    tmp_path = embedded
     table = pd.read_csv(tmp_path / "scenarios.csv", index_col=0)
     np.testing.assert_allclose(table["vehicle_hours"],
                                report.comparison.table["vehicle_hours"], rtol=1e-12)
