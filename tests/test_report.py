@@ -172,6 +172,24 @@ def test_cli_plot_select_link_and_tables(folder, tmp_path, city):
     assert res.exit_code == 0, res.output
 
 
+def test_cli_plot_learning_from_the_learn_command(folder, tmp_path, city):
+    runner = CliRunner()
+    days = tmp_path / "days.csv"
+    o, d = city.zone_ids[0], city.zone_ids[-1]
+    res = runner.invoke(main, ["learn", str(folder), "--days", "15", "--replications", "2",
+                               "--supply-noise", "0.1", "--seed", "1", "--track", f"{o}:{d}",
+                               "--out", str(days)])
+    assert res.exit_code == 0, res.output
+    shares = tmp_path / "days-shares.csv"
+    before = digest(days), digest(shares)
+    out = tmp_path / "learning.png"
+    res = runner.invoke(main, ["plot", "learning", str(days), "--shares", str(shares),
+                               "--out", str(out)])
+    assert res.exit_code == 0, res.output
+    assert out.read_bytes().startswith(b"\x89PNG")
+    assert (digest(days), digest(shares)) == before
+
+
 def test_cli_plot_errors_are_one_line(folder, tmp_path):
     runner = CliRunner()
     bad = tmp_path / "bad.csv"

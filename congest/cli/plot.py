@@ -168,7 +168,7 @@ def _network_figure(kind, net, *, results, objective, gap, method, links, method
     raise AssertionError(kind)
 
 
-def _table_figure(kind, path, *, currency, title):
+def _table_figure(kind, path, *, currency, title, shares):
     from .. import plotting
 
     table = _read_table(path)
@@ -176,7 +176,8 @@ def _table_figure(kind, path, *, currency, title):
         return plotting.sweep_chart(table, currency=currency or "money",
                                     title=title or "Demand sweep")
     if kind == "learning":
-        return plotting.learning_chart(table, title=title or "Day-to-day learning")
+        return plotting.learning_chart(table, title=title or "Day-to-day learning",
+                                       route_shares=_read_table(shares) if shares else None)
     if kind == "scenarios":
         if "scenario" in table.columns:
             table = table.set_index("scenario")
@@ -203,6 +204,9 @@ def _table_figure(kind, path, *, currency, title):
 @click.option("--methods", default="fw,cfw,bfw", show_default=True,
               help="convergence: comma-separated methods to compare.")
 @click.option("--currency", default=None, help="sweep: currency label of the revenue.")
+@click.option("--shares", "shares", type=click.Path(exists=True, dir_okay=False),
+              default=None, help="learning: route-share CSV written by 'congest learn "
+                                 "--track'.")
 @click.option("--title", default=None, help="Scenario name or title shown on the picture.")
 @click.option("--dpi", type=click.IntRange(min=50, max=600), default=150, show_default=True,
               help="Resolution of PNG output.")
@@ -211,7 +215,7 @@ def _table_figure(kind, path, *, currency, title):
 @network_options
 @friendly_errors
 def command(kind, input_path, out, results, objective, gap, method, links, methods, currency,
-            title, dpi, geojson, **net_opts):
+            shares, title, dpi, geojson, **net_opts):
     """Draw one map or chart.
 
     \b
@@ -232,6 +236,7 @@ def command(kind, input_path, out, results, objective, gap, method, links, metho
       congest plot difference networks/quillhaven --out ue-vs-so.pdf
       congest plot select-link networks/quillhaven --link 157
       congest plot sweep sweep.csv --currency crowns
+      congest plot learning days.csv --shares days-shares.csv
     """
     import matplotlib
 
@@ -261,7 +266,7 @@ def command(kind, input_path, out, results, objective, gap, method, links, metho
             if "coordinate_note" in fc:
                 click.echo(f"note: {fc['coordinate_note']}", err=True)
     else:
-        fig = _table_figure(kind, input_path, currency=currency, title=title)
+        fig = _table_figure(kind, input_path, currency=currency, title=title, shares=shares)
     try:
         save_figure(fig, out, dpi=dpi)
     except OSError as err:
