@@ -564,7 +564,7 @@ def _check_same_network(old, net):
 
 # ------------------------------------------------------------------------------ solver
 def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
-             inner_max=40, inner_ratio=0.1):
+             inner_max=40, inner_ratio=0.01, warm_ratio=1e-3):
     """Path-based gradient projection (Jayakrishnan et al. 1994) for UE and SO.
 
     Parameters
@@ -575,9 +575,12 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         each with one all-origins shortest-path pass.
     inner_max : int, default 40
         Most inner passes (route moves without new shortest paths) per iteration.
-    inner_ratio : float, default 0.1
+    inner_ratio : float, default 0.01
         Inner passes stop once a pass finds less excess cost than ``inner_ratio`` times
         the excess cost at the start of the iteration.
+    warm_ratio : float, default 1e-3
+        A warm start first re-balances the earlier routes (inner passes at the new costs)
+        until a pass finds less than ``warm_ratio`` times the excess of the first pass.
 
     Returns
     -------
@@ -593,8 +596,8 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         max_iter = 500
     if max_iter < 1:
         raise SolverError(f"max_iter must be at least 1, got {max_iter!r}")
-    if inner_max < 0 or not (inner_ratio >= 0):
-        raise SolverError("inner_max and inner_ratio must be non-negative")
+    if inner_max < 0 or not (inner_ratio >= 0) or not (warm_ratio >= 0):
+        raise SolverError("inner_max, inner_ratio and warm_ratio must be non-negative")
     start_time = time.perf_counter()
     n_links = net.n_links
     od_o, od_d, od_q = net.od_pairs()
@@ -615,7 +618,8 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     history = {"iteration": [], "relative_gap": [], "objective": [], "wall_time": []}
 
     pool = _Pool(n_od, max(2 * n_od, 16), max(16 * n_od, 4 * net.n_nodes, 16))
-    if warm_start is not None:
+    warm = warm_start is not None
+    if warm:
         _check_same_network(warm_start.network, net)
         _seed_from(warm_start.state, net, od_o, od_d, od_q, pool)
 
@@ -638,6 +642,20 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     converged = False
     message = ""
     k = 0
+    if warm:
+        # the earlier routes, rescaled, are rarely in equilibrium at the new costs:
+        # re-balance them first, which needs no shortest paths
+        _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
+                   pool.links, x)
+        _refresh_costs(x, kind, par, so, cost, deriv)
+        first = None
+        for _ in range(inner_max):
+            excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
+                                 pool.length, pool.flow, pool.next, pool.links,
+                                 pool.counters, mark, mark2)
+            first = excess if first is None else first
+            if excess <= warm_ratio * first:
+                break
     while True:
         _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
                    pool.links, x)

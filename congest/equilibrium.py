@@ -43,7 +43,7 @@ METHODS = {
 }
 
 #: Method used by ``method="auto"``.
-DEFAULT_METHOD = "bfw"
+DEFAULT_METHOD = "gp"
 
 OBJECTIVES = ("ue", "so")
 
