@@ -84,9 +84,9 @@ class Report:
     notes: list = field(default_factory=list)
 
 
-def _step(progress, name):
+def _step(progress, name, detail=""):
     if progress is not None:
-        progress(name)
+        progress(name, detail)
 
 
 def build_report(network, *, tol=1e-6, method="auto", advice_share=0.5, toll_plans=(),
@@ -114,7 +114,8 @@ def build_report(network, *, tol=1e-6, method="auto", advice_share=0.5, toll_pla
     seed : int, default 0
         Seed of the learning simulation.
     progress : callable, optional
-        ``progress(step)`` before each step of :data:`REPORT_STEPS` that runs.
+        ``progress(step, detail)`` before each step of :data:`REPORT_STEPS` that runs,
+        and during the sweep after every point (``detail`` like ``"3 of 10 points"``).
 
     Returns
     -------
@@ -137,9 +138,15 @@ def build_report(network, *, tol=1e-6, method="auto", advice_share=0.5, toll_pla
         if sweep_levels is not None and len(sweep_levels):
             from .sweep import sweep
 
-            _step(progress, "sweep")
+            _step(progress, "sweep", f"0 of {len(sweep_levels)} points")
+
+            def on_point(info):
+                _step(progress, "sweep", f"{info.done + info.failed + info.reused} of "
+                      f"{info.total} points")
+                return False
+
             sweep_result = sweep(net, list(sweep_levels), method=method, tol=tol,
-                                 scheduler="serial")
+                                 scheduler="serial", callback=on_point)
             if sweep_result.failed:
                 notes.append(f"{len(sweep_result.failed)} sweep point(s) failed and are "
                              "missing from the sweep chart.")

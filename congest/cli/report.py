@@ -89,7 +89,8 @@ def command(network, out_dir, gap, method, advice_share, plans, sweep_levels, le
     if progress:
         status = console.status("starting")
         with status:
-            report = build(lambda step: status.update(_STEP_TEXT.get(step, step)))
+            report = build(lambda step, detail="": status.update(
+                _STEP_TEXT.get(step, step) + (f" ({detail})" if detail else "")))
             status.update("writing the report folder")
             written = _write(write_report, report, out_dir, image_format, embed, InputError)
     else:
