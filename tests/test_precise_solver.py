@@ -132,23 +132,20 @@ def _check_reference(name):
     np.testing.assert_allclose(rf.link_flows(), eq.flow, rtol=1e-12, atol=1e-9)
 
 
-@pytest.mark.parametrize("name", ["siouxfalls", "anaheim", "barcelona", "winnipeg"])
+@pytest.mark.parametrize("name", ["siouxfalls", "anaheim", "barcelona", "winnipeg",
+                                  "chicagosketch"])
 def test_reference_ue_matches_published_flows_and_objective(name):
     _check_reference(name)
 
 
 @pytest.mark.slow
-def test_chicago_sketch_ue_matches_published_flows_and_objective():
-    _check_reference("chicagosketch")
-
-
-@pytest.mark.slow
 @pytest.mark.parametrize("name", ["siouxfalls", "anaheim", "barcelona", "winnipeg",
                                   "chicagosketch"])
-def test_reference_so_is_below_ue_and_meets_marginal_conditions(name):
+def test_reference_so_reaches_marginal_gap_and_is_below_ue(name):
     net = load_reference(name)
     so = solve(net, objective="so", method="gp", tol=1e-10)
     ue = solve(net, objective="ue", method="gp", tol=1e-10)
+    # the relative gap of an SO result is measured in marginal cost (recomputed by solve)
     assert so.converged and so.relative_gap <= 1e-10
     # the system optimum minimises total generalized cost (Beckmann et al. 1956)
     assert so.total_cost <= ue.total_cost * (1 + 1e-12)
