@@ -212,7 +212,8 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
                          "(use a route-based method such as 'gp').")
         else:
             charts.append(Chart("select-link", plotting.select_link_map(net, sel, busiest),
-                                f"Who uses the busiest link ({net.link_ids[busiest]})",
+                                f"Who uses the busiest link, {net.link_ids[busiest]}"
+                                + _named(net, busiest),
                                 "Volumes of the trips whose user-equilibrium routes use it."))
     else:
         notes.append("No maps: the network has no node coordinates.")
@@ -237,6 +238,12 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
                             "with day-to-day capacity noise; median and 10-90% band over "
                             "replications; route shares of the busiest OD pair."))
     return charts
+
+
+def _named(net, i):
+    names = net.link_attrs.get("name")
+    name = "" if names is None else str(names[i]).strip()
+    return f" ({name})" if name and name.lower() != "nan" else ""
 
 
 def _row_key_figure(table, key, net):

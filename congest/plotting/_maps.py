@@ -247,10 +247,10 @@ class _Frame:
         net = self.net
         if net.n_zones == 0:
             return None
-        size = float(np.clip(1600.0 / net.n_zones, 5.0, 28.0)) * (self.max_width / 6.0) ** 0.5
+        size = float(np.clip(1600.0 / net.n_zones, 2.0, 28.0)) * (self.max_width / 6.0) ** 0.5
         pts = self.ax.scatter(net.x[net.zone_nodes], net.y[net.zone_nodes], s=size,
                               marker="o", facecolor="white", edgecolor=_INK,
-                              linewidths=0.7, zorder=4)
+                              linewidths=0.7 if net.n_zones <= 400 else 0.4, zorder=4)
         pts.set_gid(MAP_LAYERS["zones"])
         self._zone_size = size
         return pts
@@ -341,6 +341,15 @@ class _Frame:
         width = int(self.fig.get_figwidth() * 16.5)  # characters of 7.5 pt text per line
         self.fig.text(0.03, 0.012, textwrap.fill(text, width), fontsize=7.5, color=_MUTED,
                       ha="left", va="bottom", gid="congest-footnote", linespacing=1.3)
+
+
+def _link_name(net, i):
+    """`` (Old Bridge)`` when the network names its links, else empty."""
+    names = net.link_attrs.get("name")
+    if names is None:
+        return ""
+    name = str(names[i]).strip()
+    return f" ({name})" if name and name.lower() != "nan" else ""
 
 
 def _key_figures(eq):
@@ -673,7 +682,7 @@ def select_link_map(network, select_flow, selected, *, label=None, figsize=(10.0
     frame.add_scale_bar()
     if label is None:
         ids = ", ".join(str(v) for v in net.link_ids[sel][:6])
-        label = (f"trips using link {ids}" if sel.size == 1
+        label = (f"trips using link {ids}{_link_name(net, sel[0])}" if sel.size == 1
                  else f"trips using links {ids}{' ...' if sel.size > 6 else ''}")
     total = float(volume[sel].max())
     frame.titles(f"{net.name}: {label}",
