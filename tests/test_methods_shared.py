@@ -221,3 +221,14 @@ def test_preload_is_the_rest_of_the_combined_equilibrium(method, objective, comb
     # time and cost are at the total volume
     assert_allclose(res.time, [8.0, 1.0] + np.array([1.0, 2.0]) * (res.flow + preload),
                     rtol=1e-12)
+
+
+# ------------------------------------------------------------------- warm start
+def test_warm_start_from_a_solution_stops_at_once(method):
+    # Started from flows that already meet the target, a method has nothing to do.
+    net = random_network(np.random.default_rng(7), load=2.0)
+    first = run(net, method, "ue")
+    again = congest.solve(net, method=method, tol=target(method) * 1.01, warm_start=first)
+    assert again.converged
+    assert again.iterations <= 2
+    assert_allclose(again.flow, first.flow, atol=1e-6 * net.total_demand)
