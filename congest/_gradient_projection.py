@@ -631,6 +631,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     n_nodes = net.n_nodes
     pred = np.empty((origins.size, n_nodes), dtype=np.int32)
     zdist = np.empty((origins.size, net.n_zones))
+    od_flat = od_row * net.n_zones + od_d
     mark = np.zeros(n_links, dtype=np.int64)
     mark2 = np.zeros(n_links, dtype=np.int64)
     work = np.empty(n_nodes, dtype=np.int32)
@@ -662,10 +663,10 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         _refresh_costs(x, kind, par, so, cost, deriv)
         trees(origin_nodes, sp.zone_nodes, sp.indptr, sp.adj_link, sp.adj_head, cost,
                sp.blocked, pred, zdist, n_chunks)
-        od_dist = zdist[od_row, od_d]
+        od_dist = np.take(zdist, od_flat)  # 2-d fancy indexing is far slower
         if k == 0 and not np.isfinite(od_dist).all():
             problem.all_or_nothing(cost)  # raises NetworkError naming the pairs
-        sptt = float(od_dist @ od_q)
+        sptt = float(np.sum(od_dist * od_q))  # a BLAS dot may wake its thread pool
         tstt = float(x @ cost)
         # OD pairs without routes yet (cold start, or new pairs in a warm start) have no
         # flow, so the gap of the partial loading means nothing
