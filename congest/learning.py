@@ -74,7 +74,8 @@ import numba
 import numpy as np
 
 from .costs import CostModel, time_scalar
-from .paths import ShortestPaths, dijkstra
+from .paths import ShortestPaths
+from .routesets import _heap_pop, _heap_push
 
 __all__ = ["simulate", "LearningResult", "RULES", "SCHEDULES", "INFORMATION"]
 
@@ -136,17 +137,22 @@ def _link_costs(route_flow, l_rptr, l_ridx, kind, t0, alpha, beta, cap, const, x
 
 
 @numba.njit(cache=True, parallel=True)
-def _route_costs(c_act, c_nom, r_lptr, r_lidx, out_act, out_nom):
-    """Route costs (sums over links) at the actual and at the nominal link costs."""
+def _route_costs(c_act, c_nom, both, r_lptr, r_lidx, out_act, out_nom):
+    """Route costs (sums over links) at the actual and, if ``both``, the nominal costs."""
     n_rep, n_routes = out_act.shape
     for item in numba.prange(n_rep * n_routes):
         r = item // n_routes
         p = item - r * n_routes
         s = 0.0
         s_nom = 0.0
-        for k in range(r_lptr[p], r_lptr[p + 1]):
-            s += c_act[r, r_lidx[k]]
-            s_nom += c_nom[r, r_lidx[k]]
+        if both:
+            for k in range(r_lptr[p], r_lptr[p + 1]):
+                s += c_act[r, r_lidx[k]]
+                s_nom += c_nom[r, r_lidx[k]]
+        else:
+            for k in range(r_lptr[p], r_lptr[p + 1]):
+                s += c_act[r, r_lidx[k]]
+            s_nom = s
         out_act[r, p] = s
         out_nom[r, p] = s_nom
 
@@ -168,6 +174,38 @@ def _od_best(route_value, od_ptr, out_min, out_arg):
         out_arg[r, od] = best
 
 
+@numba.njit(cache=True)
+def _origin_sptt(origin, demand_row, zone_nodes, is_dest, n_dest, indptr, adj_link, adj_head,
+                 cost, blocked, dist, heap_key, heap_node):
+    """``sum_d q_od * dist(o, d)`` for one origin; stops once every destination with
+    demand is settled. ``is_dest`` marks (node -> zone index + 1) destinations."""
+    for i in range(dist.size):
+        dist[i] = np.inf
+    dist[origin] = 0.0
+    size = _heap_push(heap_key, heap_node, 0, 0.0, origin)
+    total = 0.0
+    left = n_dest
+    while size > 0 and left > 0:
+        d, u, size = _heap_pop(heap_key, heap_node, size)
+        if d > dist[u]:
+            continue
+        z = is_dest[u] - 1
+        if z >= 0 and demand_row[z] > 0.0:
+            total += demand_row[z] * d
+            left -= 1
+        if blocked[u] and u != origin:
+            continue
+        for k in range(indptr[u], indptr[u + 1]):
+            v = adj_head[k]
+            nd = d + cost[adj_link[k]]
+            if nd < dist[v]:
+                dist[v] = nd
+                size = _heap_push(heap_key, heap_node, size, nd, v)
+    if left > 0:
+        return np.inf
+    return total
+
+
 @numba.njit(cache=True, parallel=True)
 def _network_sptt(cost, origins, zone_nodes, demand, indptr, adj_link, adj_head, blocked,
                   n_chunks):
@@ -176,26 +214,26 @@ def _network_sptt(cost, origins, zone_nodes, demand, indptr, adj_link, adj_head,
     n_orig = origins.size
     n_nodes = indptr.size - 1
     n_links = adj_link.size
+    is_dest = np.zeros(n_nodes, dtype=np.int64)
+    for z in range(zone_nodes.size):
+        is_dest[zone_nodes[z]] = z + 1
     part = np.zeros((n_rep, n_orig))
     total = n_rep * n_orig
     for c in numba.prange(n_chunks):
         dist = np.empty(n_nodes)
-        pred = np.empty(n_nodes, dtype=np.int64)
-        order = np.empty(n_nodes, dtype=np.int64)
         heap_key = np.empty(n_links + 1)
         heap_node = np.empty(n_links + 1, dtype=np.int64)
         for item in range(c, total, n_chunks):
             r = item // n_orig
             i = item - r * n_orig
             oz = origins[i]
-            dijkstra(zone_nodes[oz], indptr, adj_link, adj_head, cost[r], blocked, dist, pred,
-                     order, heap_key, heap_node)
-            s = 0.0
+            n_dest = 0
             for dz in range(zone_nodes.size):
-                q = demand[oz, dz]
-                if q > 0.0:
-                    s += q * dist[zone_nodes[dz]]
-            part[r, i] = s
+                if demand[oz, dz] > 0.0:
+                    n_dest += 1
+            part[r, i] = _origin_sptt(zone_nodes[oz], demand[oz], zone_nodes, is_dest, n_dest,
+                                      indptr, adj_link, adj_head, cost[r], blocked, dist,
+                                      heap_key, heap_node)
     return part.sum(axis=1)
 
 
@@ -679,7 +717,7 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
         _link_costs(f, l_rptr, l_ridx, model.kind, model.t0, model.alpha, model.beta,
                     model.capacity, model.constant, xi, supply_noise > 0, x, t_act, c_nom)
         np.add(t_act, model.constant[None, :], out=c_act)
-        _route_costs(c_act, c_nom, r_lptr, r_lidx, c_route, c_route_nom)
+        _route_costs(c_act, c_nom, supply_noise > 0, r_lptr, r_lidx, c_route, c_route_nom)
         route_cum += c_route
         sum_x += x
         sum_f += f
@@ -732,7 +770,11 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
         rec["mean_regret"][t] = np.where(learners > 0, num, np.nan) / (t + 1)
         worst = np.where(learners > 0, worst, np.nan)
         rec["max_regret"][t] = worst / (t + 1)
-        _od_best(c_route, od_ptr, od_min, adv)
+        if advice_share > 0:
+            if supply_noise > 0:
+                _od_best(c_route, od_ptr, od_min, adv)
+            else:
+                adv[:] = od_arg
 
     mean_x = sum_x / days
     mean_f = sum_f / days
