@@ -250,6 +250,7 @@ def test_difference_map_is_centred_on_zero(net):
     # largest change 130 (or less) rounds up to a symmetric scale
     top = np.abs(change).max()
     cbar_ax = next(ax for ax in fig.axes if "SO minus UE" in ax.get_ylabel())
+    assert max(len(line) for line in cbar_ax.get_ylabel().splitlines()) <= 34
     lo, hi = cbar_ax.get_ylim()
     assert lo == -hi and hi >= top
     expected = change_colormap()(Normalize(lo, hi)(change))
@@ -283,6 +284,12 @@ def test_toll_map_draws_tolled_links_and_amounts(net):
     flow = np.full(net.n_links, 100.0)
     sub = text(toll_map(net, toll, flow=flow, currency="crowns"), "congest-subtitle")
     assert "revenue 525 crowns" in sub  # (1.5 + 3 + 0.75) * 100
+    # a toll of rounding-noise size is drawn as untolled and said so
+    noisy = toll.copy()
+    noisy[0] = 1e-9
+    fig = toll_map(net, noisy, currency="crowns")
+    assert len(layer(fig, "links").get_segments()) == 3
+    assert "1 link(s) with tolls below" in text(fig, "congest-footnote")
 
 
 def test_select_link_map_highlights_the_selection(net):
@@ -430,7 +437,7 @@ def test_save_figure_unknown_suffix(tmp_path, net):
 
 
 def test_import_congest_does_not_import_matplotlib():
-    code = ("import sys, congest, congest.plotting, congest.io.geojson; "
+    code = ("import sys, congest, congest.plotting, congest.report, congest.io.geojson; "
             "print('matplotlib' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True)

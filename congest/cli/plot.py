@@ -219,15 +219,15 @@ def command(kind, input_path, out, results, objective, gap, method, links, metho
     """Draw one map or chart.
 
     \b
-    KIND       INPUT     draws
-    flow       network   volumes (width) and volume/capacity (colour)
-    difference network   change in volume between two scenarios
-    toll       network   tolled links and amounts
-    select-link network  where the trips using --link travel
-    convergence network  relative gap against iteration and time per method
-    sweep      table     price of anarchy and toll revenue against demand
-    learning   table     day-to-day travel time, gap and route shares
-    scenarios  table     the comparison table as grouped bars
+    KIND         INPUT     draws
+    flow         network   volumes (width) and volume/capacity (colour)
+    difference   network   change in volume between two scenarios
+    toll         network   tolled links and amounts
+    select-link  network   where the trips using --link travel
+    convergence  network   relative gap against iteration and time per method
+    sweep        table     price of anarchy and toll revenue against demand
+    learning     table     day-to-day travel time, gap and route shares
+    scenarios    table     the comparison table as grouped bars
 
     \b
     Examples:

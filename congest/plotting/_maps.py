@@ -91,8 +91,10 @@ def _nice(value, *, up=True, fine=False):
 
 
 def _money(value):
-    """Money per vehicle: two decimals, more for amounts below one hundredth."""
-    return f"{value:,.2f}" if abs(value) >= 0.01 or value == 0 else f"{value:.2g}"
+    """Money per vehicle with two decimals; "under 0.01" for smaller positive amounts."""
+    if 0 < value < 0.005:
+        return "under 0.01"
+    return f"{value:,.2f}"
 
 
 def _samples(top):
@@ -495,8 +497,10 @@ def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), key_figure=Non
     frame.add_links(widths, cmap(norm(change)))
     if show_zones:
         frame.add_zones()
-    frame.add_colorbar(cmap, norm, f"Change in volume, {labels[1]} minus {labels[0]}\n"
-                       "(vehicles)")
+    import textwrap
+
+    frame.add_colorbar(cmap, norm, textwrap.fill(
+        f"Change in volume, {labels[1]} minus {labels[0]}, vehicles", 34))
     frame.add_width_key(_samples(biggest), "Size of change,\nvehicles", reference=biggest)
     frame.add_scale_bar()
     tiny = 1e-9 * max(float(np.max(np.abs(a))) if a.size else 0.0, 1.0)
@@ -547,9 +551,11 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     amount = _as_flow(net, net.toll if toll is None else toll, "toll")
     currency = net.currency if currency is None else currency
     volume = None if flow is None else _as_flow(net, flow, "flow")
-    # rounding noise (1e-25 where an SO flow is zero) is no toll
-    tolled = amount > 1e-9 * max(float(np.max(np.abs(amount))) if amount.size else 0.0,
-                                 1e-12)
+    # tolls below 1e-4 of the largest (rounding noise where an SO flow is near zero)
+    # are drawn as untolled and counted in the footnote
+    top_toll = float(np.max(np.abs(amount))) if amount.size else 0.0
+    tolled = amount > max(1e-4 * top_toll, 1e-12)
+    tiny = int(np.sum((amount > 0) & ~tolled))
     frame = _Frame(net, figsize=figsize)
     hair = np.full(net.n_links, _HAIRLINE * 2)
     context = np.tile(np.array([[0.79, 0.81, 0.83, 1.0]]), (net.n_links, 1))
@@ -590,7 +596,8 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     else:
         sub = "no tolled links"
     frame.titles(f"{net.name}: {scenario}", sub)
-    frame.footnote()
+    frame.footnote(f"{tiny:,} link(s) with tolls below {1e-4 * top_toll:.2g} {currency} "
+                   "drawn as untolled." if tiny else "")
     return frame.fig
 
 
