@@ -83,6 +83,12 @@ class Report:
     learning: object = None
     notes: list = field(default_factory=list)
 
+    @property
+    def has_coordinates(self) -> bool:
+        """True when every node has coordinates (maps and links.geojson are written)."""
+        net = self.network
+        return bool(np.isfinite(net.x).all() and np.isfinite(net.y).all())
+
 
 def _step(progress, name, detail=""):
     if progress is not None:
@@ -329,8 +335,10 @@ def markdown_summary(report, images) -> str:
     out += ["## Scenarios", "", "| " + " | ".join(heads) + " |",
             "|" + "|".join(["---"] + ["---:"] * (len(heads) - 1)) + "|"]
     out += ["| " + " | ".join(r) + " |" for r in rows]
-    out += ["", "The full table is in `scenarios.csv`; link results of every scenario are in "
-            "`links.geojson`.", "", "## Charts", ""]
+    where = "The full table is in `scenarios.csv`"
+    if report.has_coordinates:
+        where += "; link results of every scenario are in `links.geojson`"
+    out += ["", where + ".", "", "## Charts", ""]
     for chart in report.charts:
         out += [f"### {chart.heading}", "", chart.caption, "",
                 f"![{chart.heading}]({images[chart.name]})", ""]
@@ -384,8 +392,9 @@ def html_page(report, images, *, embed_from=None) -> str:
         parts.append("<tr><td>" + esc(row[0]) + "</td>"
                      + "".join(f'<td class="num">{esc(v)}</td>' for v in row[1:]) + "</tr>")
     parts.append("</tbody></table>")
-    parts.append("<p>Full table: <code>scenarios.csv</code>; link results of every scenario: "
-                 "<code>links.geojson</code>.</p>")
+    parts.append("<p>Full table: <code>scenarios.csv</code>"
+                 + ("; link results of every scenario: <code>links.geojson</code>"
+                    if report.has_coordinates else "") + ".</p>")
     parts.append("<h2>Charts</h2>")
     mime = {".png": "image/png", ".svg": "image/svg+xml"}
     for chart in report.charts:
@@ -438,7 +447,7 @@ def write_report(report, folder, *, image_format="png", embed=True, dpi=150) -> 
         cmp.table.to_csv(fh, lineterminator="\n")
     written.append(folder / "scenarios.csv")
     net = report.network
-    if np.isfinite(net.x).all() and np.isfinite(net.y).all():
+    if report.has_coordinates:
         props = {}
         for key, links in cmp.links.items():
             props[f"volume_{key}"] = links["flow"].to_numpy(float)

@@ -115,6 +115,25 @@ def test_table_and_geojson_match_the_comparison(report, embedded):
     assert f"Price of anarchy {fb.price_of_anarchy:.4f}" in (tmp_path / "summary.md").read_text()
 
 
+def test_network_without_coordinates_gets_charts_but_no_maps(tmp_path):
+    # Braess's paradox network (Braess 1968) without node coordinates
+    from congest.network import Network
+
+    braess = Network(node_ids=[1, 2, 3, 4], tail=[0, 0, 1, 2, 1], head=[1, 2, 3, 3, 2],
+                     capacity=1.0, free_flow_time=[0.0, 50.0, 50.0, 0.0, 10.0],
+                     alpha=[10.0, 1.0, 1.0, 10.0, 1.0], beta=1.0, cost_kind=2,
+                     zone_ids=[1, 4], zone_nodes=[0, 3], demand=[[0, 6], [0, 0]])
+    rep = build_report(braess, tol=1e-8)
+    written = {p.name for p in write_report(rep, tmp_path, embed=False)}
+    assert "links.geojson" not in written and "flow-ue.png" not in written
+    assert {"scenarios.png", "report.html", "summary.md", "scenarios.csv"} <= written
+    page = (tmp_path / "report.html").read_text()
+    for src in image_sources(page):
+        assert (tmp_path / src).is_file()
+    assert "links.geojson" not in page
+    assert "No maps: the network has no node coordinates." in page
+
+
 def test_svg_report(report, tmp_path):
     write_report(report, tmp_path, image_format="svg", embed=False)
     for src in image_sources((tmp_path / "report.html").read_text()):

@@ -100,7 +100,7 @@ def command(network, out_dir, gap, method, advice_share, plans, sweep_levels, le
     for path in written:
         click.echo(f"  {path.name}")
     click.echo(f"open {Path(out_dir) / 'report.html'}")
-    if not is_lonlat(net.crs):
+    if not is_lonlat(net.crs) and any(p.name == "links.geojson" for p in written):
         click.echo(f"note: links.geojson carries the network's own coordinates "
                    f"({net.crs or 'coordinate system not stated'}), not longitude/latitude; "
                    "assign that system when importing it into a GIS.", err=True)
