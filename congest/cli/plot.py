@@ -201,7 +201,7 @@ def _table_figure(kind, path, *, currency, title, shares):
 @click.option("--method", default="auto", show_default=True, help="Equilibrium method.")
 @click.option("--link", "links", multiple=True, type=int, metavar="LINK_ID",
               help="select-link: link id(s) whose trips to map.")
-@click.option("--methods", default="fw,cfw,bfw", show_default=True,
+@click.option("--methods", default="fw,bfw,gp", show_default=True,
               help="convergence: comma-separated methods to compare.")
 @click.option("--currency", default=None, help="sweep: currency label of the revenue.")
 @click.option("--shares", "shares", type=click.Path(exists=True, dir_okay=False),

@@ -7,6 +7,13 @@ quantity, colour from a perceptually uniform colour map with its colour bar, a w
 zone centroids, a scale bar and a note on the coordinate system. Links go into one
 ``LineCollection`` per layer so that networks of thousands of links draw in well under a
 second.
+
+References
+----------
+.. [1] Smith, N. & van der Walt, S. (2015). A better default colormap for matplotlib.
+   SciPy 2015 (the perceptually uniform viridis/magma family).
+.. [2] Moreland, K. (2009). Diverging color maps for scientific visualization.
+   Advances in Visual Computing, LNCS 5876, 92-103 (the coolwarm map).
 """
 
 from __future__ import annotations
