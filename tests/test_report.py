@@ -189,6 +189,11 @@ def test_cli_plot_select_link_and_tables(folder, tmp_path, city):
                   "first_best_revenue": [10.0, 50.0]}).to_csv(table, index=False)
     res = runner.invoke(main, ["plot", "sweep", str(table), "--out", str(tmp_path / "s.png")])
     assert res.exit_code == 0, res.output
+    res = runner.invoke(main, ["plot", "convergence", str(folder), "--methods", "fw,gp",
+                               "--gap", "1e-4", "--out", str(tmp_path / "c.svg")])
+    assert res.exit_code == 0, res.output
+    svg = (tmp_path / "c.svg").read_text()
+    assert "fw (UE)" in svg and "gp (UE)" in svg
 
 
 def test_cli_plot_learning_from_the_learn_command(folder, tmp_path, city):

@@ -255,8 +255,13 @@ def command(kind, input_path, out, results, objective, gap, method, links, metho
         net, layout = load_network(input_path, **net_opts)
         if not results:
             check_paths(net, layout)
-        fig, flow = _network_figure(kind, net, results=results, objective=objective, gap=gap,
-                                    method=method, links=links, methods=methods, title=title)
+        from rich.console import Console
+
+        with Console(stderr=True).status(f"drawing the {kind} picture of {net.name}"
+                                         + ("" if results else " (solving first)")):
+            fig, flow = _network_figure(kind, net, results=results, objective=objective,
+                                        gap=gap, method=method, links=links, methods=methods,
+                                        title=title)
         if geojson:
             from ..io.geojson import write_link_geojson
 
