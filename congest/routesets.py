@@ -586,7 +586,7 @@ def _used_routes(equilibrium):
 
 
 def build_route_set(network, *, k=3, max_routes=None, equilibrium=None, tol=1e-8,
-                    min_share=1e-6) -> RouteSet:
+                    min_share=1e-6, alternatives=("free_flow", "ue_cost")) -> RouteSet:
     """Route set of a network: UE used routes plus k shortest paths.
 
     Parameters
@@ -606,6 +606,9 @@ def build_route_set(network, *, k=3, max_routes=None, equilibrium=None, tol=1e-8
     min_share : float, default 1e-6
         Used routes carrying less than this share of their OD demand are not counted as
         used (they may still enter as shortest paths).
+    alternatives : tuple of {"free_flow", "ue_cost"}, default both
+        Costs at which the ``k`` shortest paths are searched (each is one Yen pass over
+        all OD pairs; on large networks one pass may be enough).
 
     Returns
     -------
@@ -655,10 +658,15 @@ def build_route_set(network, *, k=3, max_routes=None, equilibrium=None, tol=1e-8
             for r, f in zip(routes, flows, strict=True):
                 if f > min_share * q[i]:
                     add(i, r, SOURCE_FLAGS["ue_used"], f)
+    unknown = set(alternatives) - {"free_flow", "ue_cost"}
+    if unknown:
+        raise ValueError(f"Unknown alternatives {sorted(unknown)}; use 'free_flow', "
+                         "'ue_cost'")
     if k > 0:
-        for cost, flag in ((network.free_flow_time + network.constant_cost, "free_flow"),
-                           (equilibrium.cost, "ue_cost")):
-            for i, paths in enumerate(k_shortest_paths(network, cost, k)):
+        costs = {"free_flow": network.free_flow_time + network.constant_cost,
+                 "ue_cost": equilibrium.cost}
+        for flag in alternatives:
+            for i, paths in enumerate(k_shortest_paths(network, costs[flag], k)):
                 for p in paths:
                     add(i, p, SOURCE_FLAGS[flag])
     ue_cost = equilibrium.cost

@@ -125,3 +125,27 @@ def test_from_routes_rejects_broken_route():
         RouteSet.from_routes(net, {(0, 1): [[0, 3]]})
     with pytest.raises(ValueError, match="no routes given"):
         RouteSet.from_routes(net, {})
+
+
+def test_route_based_solution_gives_used_routes_first():
+    # the route-based solver's used routes carry the UE route flows (they reproduce the
+    # UE link flows); a cap keeps the used routes before the other alternatives
+    net = random_network(5)
+    eq = solve(net, tol=1e-10)
+    rs = build_route_set(net, k=3, equilibrium=eq, max_routes=None)
+    used = (rs.source & SOURCE_FLAGS["ue_used"]) > 0
+    np.testing.assert_allclose(rs.link_flows(rs.ue_route_flow), eq.flow, rtol=1e-6,
+                               atol=1e-6)
+    np.testing.assert_allclose(np.add.reduceat(rs.ue_route_flow, rs.od_indptr[:-1]),
+                               rs.od_demand, rtol=1e-6)
+    n_used = np.add.reduceat(used.astype(int), rs.od_indptr[:-1])
+    capped = build_route_set(net, k=3, equilibrium=eq, max_routes=1)
+    first = capped.od_indptr[:-1]
+    assert np.all(capped.source[first] & SOURCE_FLAGS["ue_used"])
+    assert n_used.max() >= 1
+    # without shortest paths a link-based solution leaves OD pairs without routes
+    fw = solve(net, tol=1e-6, method="bfw", max_iter=20_000)
+    with pytest.raises(ValueError, match="has no route"):
+        build_route_set(net, k=0, equilibrium=fw)
+    with pytest.raises(ValueError, match="Unknown alternatives"):
+        build_route_set(net, equilibrium=fw, alternatives=("random",))
