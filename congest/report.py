@@ -210,6 +210,17 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
                             f"Tolls x t'(x) at the system optimum, in {net.currency} per "
                             "vehicle; under them, drivers choosing selfishly reproduce the "
                             "system optimum."))
+        for key, links in cmp.links.items():
+            if not key.startswith("plan_"):
+                continue
+            label = str(table.loc[key, "label"]) if key in table.index else key
+            charts.append(Chart(
+                key.replace("_", "-"),
+                plotting.toll_map(net, links["toll_money"].to_numpy(float),
+                                  flow=links["flow"].to_numpy(float), scenario=label),
+                f"Toll plan: {label}",
+                f"The plan's tolls in {net.currency} per vehicle, with the volumes on the "
+                "tolled links under user equilibrium."))
         try:
             busiest = int(np.argmax(ue.flow))
             sel = plotting.select_link_flow(ue, busiest)

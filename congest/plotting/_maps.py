@@ -596,8 +596,9 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
                           bbox={"boxstyle": "round,pad=0.12", "fc": "white", "ec": "none",
                                 "alpha": 0.85})
     if k:
-        sub = (f"{k:,} tolled links  ·  {_money(amount[tolled].min())} to "
-               f"{_money(amount[tolled].max())} {currency} per vehicle")
+        lo, hi = _money(amount[tolled].min()), _money(amount[tolled].max())
+        sub = (f"{k:,} tolled link{'s' if k != 1 else ''}  ·  "
+               f"{lo if lo == hi else f'{lo} to {hi}'} {currency} per vehicle")
         if volume is not None:
             sub += f"  ·  revenue {float(amount @ volume):,.0f} {currency} per period"
     else:
