@@ -134,6 +134,22 @@ def test_network_without_coordinates_gets_charts_but_no_maps(tmp_path):
     assert "No maps: the network has no node coordinates." in page
 
 
+def test_toll_plans_get_their_own_map(city, tmp_path):
+    from congest.io.tollplan import read_toll_plan
+    from congest.plotting import MAP_LAYERS
+
+    plan_file = tmp_path / "gate.csv"
+    plan_file.write_text(f"link_id,charge\n{city.link_ids[3]},2.5\n")
+    plan = read_toll_plan(plan_file, city)
+    rep = build_report(city, tol=1e-6, toll_plans=[plan])
+    chart = next(c for c in rep.charts if c.name.startswith("plan-"))
+    links = [c for ax in chart.figure.axes for c in ax.collections
+             if c.get_gid() == MAP_LAYERS["links"]]
+    assert len(links) == 1 and len(links[0].get_segments()) == 1  # the one charged link
+    sub = next(t.get_text() for t in chart.figure.texts if t.get_gid() == "congest-subtitle")
+    assert sub.startswith("1 tolled link  ·  2.50 ")
+
+
 def test_svg_report(report, tmp_path):
     write_report(report, tmp_path, image_format="svg", embed=False)
     for src in image_sources((tmp_path / "report.html").read_text()):
