@@ -446,7 +446,9 @@ def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
                     label += f" ({h:.0f}%)"
                 top = min(h, cap) if math.isfinite(h) else 0.0
                 ax.text(x_mid, top + tall * 0.01, label, ha="center", va="bottom",
-                        fontsize=6.5, color=_INK, rotation=90, zorder=4)
+                        fontsize=6.5, color=_INK, rotation=90, zorder=4,
+                        bbox={"boxstyle": "square,pad=0.05", "fc": "white", "ec": "none",
+                              "alpha": 0.8})
     ax.axhline(100.0, color=_MUTED, lw=0.9, ls=(0, (4, 3)), zorder=3)
     import textwrap
 
