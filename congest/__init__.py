@@ -13,6 +13,8 @@ from .exceptions import (
 )
 from .io import from_networkx, read_gmns, read_network, read_tables, to_networkx, write_gmns
 from .network import Network
+from .pricing import first_best, marginal_cost_tolls, price_of_anarchy, second_best
+from .scenarios import compare
 
 __version__ = "0.1.0"
 
@@ -32,4 +34,9 @@ __all__ = [
     "write_gmns",
     "from_networkx",
     "to_networkx",
+    "price_of_anarchy",
+    "marginal_cost_tolls",
+    "first_best",
+    "second_best",
+    "compare",
 ]

@@ -10,11 +10,19 @@ Writers (all atomic)
 """
 
 from .atomic import atomic_folder, atomic_write
+from .geojson import (
+    coordinate_note,
+    is_lonlat,
+    link_feature_collection,
+    read_link_geojson,
+    write_link_geojson,
+)
 from .gmns import read_gmns, write_gmns
 from .graph import from_networkx, to_networkx
 from .layout import Layout, detect_layout, read_network
 from .results import link_results, write_link_results
 from .tables import parse_zones, read_tables
+from .tollplan import read_toll_plan
 
 __all__ = [
     "read_network",
@@ -30,4 +38,10 @@ __all__ = [
     "detect_layout",
     "Layout",
     "parse_zones",
+    "read_toll_plan",
+    "link_feature_collection",
+    "write_link_geojson",
+    "read_link_geojson",
+    "is_lonlat",
+    "coordinate_note",
 ]
