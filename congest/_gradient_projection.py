@@ -12,10 +12,14 @@ Every OD pair keeps the set of routes it uses, with their flows. One iteration:
    step (Jayakrishnan et al. 1994): ``delta_p = min(f_p, (c_p - c_b) / D_p)`` with
    ``D_p`` the sum of the cost derivatives on the links where route ``p`` and the
    cheapest route ``b`` differ. Link costs are updated after every move (Gauss-Seidel).
-   Routes whose flow reaches zero are dropped;
-4. inner passes repeat step 3 over the fixed route sets (no shortest paths) while they
-   still remove a good share of the excess cost, since they are much cheaper than
-   step 2 (Chen, Jayakrishnan & Tsai 2002 call this the inner loop).
+   A route whose flow reaches zero is dropped once it costs noticeably more than the
+   cheapest one (option ``keep``); nearly cheapest unused routes stay, since an OD pair
+   whose routes differ only on links of almost constant cost would otherwise swing all
+   its flow between two routes and rediscover the other one iteration after iteration;
+4. inner passes repeat step 3 over the fixed route sets (no shortest paths) until the
+   excess cost is a small share of the iteration's start, since they are much cheaper
+   than step 2 (the inner loop of Chen, Jayakrishnan & Tsai 2002). They visit only the
+   OD pairs whose excess at their last visit was not negligible.
 
 Memory is proportional to the number of links plus the total length of the used routes
 (a pool of link indices, compacted when half of it belongs to dropped routes), plus one
@@ -183,7 +187,7 @@ def _sum_flows(od_demand, od_first, p_start, p_len, p_flow, p_next, pool, x):
 
 @numba.njit(cache=True)
 def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_flow,
-                 p_next, pool, counters, mark, mark2):
+                 p_next, pool, counters, mark, mark2, keep, prune):
     """Newton moves of one OD pair's flow to its cheapest route; returns its excess cost.
 
     The excess ``sum_p f_p (c_p - c_min)`` is measured before the moves.
@@ -215,6 +219,28 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
         nxt = p_next[p]
         if p == best:
             prev = p
+            p = nxt
+            continue
+        if p_flow[p] <= 0.0:
+            # an unused route: nothing to move. Once per iteration (prune) it is dropped
+            # unless nearly cheapest, when it would only be found again by a later
+            # shortest-path pass
+            if not prune:
+                prev = p
+                p = nxt
+                continue
+            cp = 0.0
+            for i in range(p_start[p], p_start[p] + p_len[p]):
+                cp += cost[pool[i]]
+            if cp - best_cost > keep * best_cost:
+                if prev < 0:
+                    od_first[od] = nxt
+                else:
+                    p_next[prev] = nxt
+                counters[_DEAD_LINKS] += p_len[p]
+                p_len[p] = 0
+            else:
+                prev = p
             p = nxt
             continue
         counters[_STAMP] += 1
@@ -259,7 +285,7 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
                 p_flow[best] += delta
                 f = f - delta if delta < f else 0.0
                 p_flow[p] = f
-        if f <= 0.0:
+        if f <= 0.0 and diff > keep * cb:
             # drop the route
             if prev < 0:
                 od_first[od] = nxt
@@ -276,7 +302,7 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
 @numba.njit(cache=True)
 def _column_pass(start, need, od_row, od_dnode, od_demand, tail, pred, x, kind, par, so,
                  cost, deriv, od_first, p_start, p_len, p_flow, p_hash, p_next, pool, counters,
-                 mark, mark2, work):
+                 mark, mark2, work, keep, od_excess):
     """Add each OD pair's tree route if new, then equilibrate the pair.
 
     Stops early (returning the OD index to resume from) when the route arrays could
@@ -290,9 +316,12 @@ def _column_pass(start, need, od_row, od_dnode, od_demand, tail, pred, x, kind, 
             return od, excess
         if not need[od]:
             first = od_first[od]
+            od_excess[od] = 0.0
             if first >= 0 and p_next[first] >= 0:
-                excess += _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start,
-                                       p_len, p_flow, p_next, pool, counters, mark, mark2)
+                e = _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
+                                 p_flow, p_next, pool, counters, mark, mark2, keep, True)
+                od_excess[od] = e
+                excess += e
             continue
         row = od_row[od]
         node = od_dnode[od]
@@ -338,21 +367,30 @@ def _column_pass(start, need, od_row, od_dnode, od_demand, tail, pred, x, kind, 
                 p_flow[q] = 0.0
             p_next[q] = od_first[od]
             od_first[od] = q
-        excess += _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
-                               p_flow, p_next, pool, counters, mark, mark2)
+        e = _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
+                         p_flow, p_next, pool, counters, mark, mark2, keep, True)
+        # a pair that just got a route is always revisited by the next inner pass
+        od_excess[od] = e if e > 0.0 else np.inf
+        excess += e
     return n_od, excess
 
 
 @numba.njit(cache=True)
 def _inner_pass(x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_flow, p_next,
-                pool, counters, mark, mark2):
+                pool, counters, mark, mark2, keep, od_excess, threshold):
+    """Equilibrate the OD pairs whose last excess cost was above ``threshold``."""
     excess = 0.0
     for od in range(od_first.size):
+        if od_excess[od] <= threshold:
+            continue
         first = od_first[od]
         if first < 0 or p_next[first] < 0:
+            od_excess[od] = 0.0
             continue  # a single route has nothing to move (checked here: calls are dear)
-        excess += _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
-                               p_flow, p_next, pool, counters, mark, mark2)
+        e = _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
+                         p_flow, p_next, pool, counters, mark, mark2, keep, False)
+        od_excess[od] = e
+        excess += e
     return excess
 
 
@@ -564,7 +602,7 @@ def _check_same_network(old, net):
 
 # ------------------------------------------------------------------------------ solver
 def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
-             inner_max=40, inner_ratio=0.01, warm_ratio=1e-3):
+             inner_max=40, inner_ratio=0.01, warm_ratio=1e-3, keep=0.01):
     """Path-based gradient projection (Jayakrishnan et al. 1994) for UE and SO.
 
     Parameters
@@ -581,6 +619,10 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     warm_ratio : float, default 1e-3
         A warm start first re-balances the earlier routes (inner passes at the new costs)
         until a pass finds less than ``warm_ratio`` times the excess of the first pass.
+    keep : float, default 0.01
+        A route whose flow reaches zero stays in its OD pair's set (ready to take flow
+        back without a new shortest-path search) while its cost is within ``keep``
+        (relative) of the pair's cheapest route; it is checked once per iteration.
 
     Returns
     -------
@@ -636,6 +678,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     mark2 = np.zeros(n_links, dtype=np.int64)
     work = np.empty(n_nodes, dtype=np.int32)
     need = np.zeros(n_od, dtype=np.bool_)
+    od_excess = np.zeros(n_od)
     # a tree route joins only if cheaper than the OD's routes by more than rounding
     route_tol = min(1e-13, 0.1 * tol)
     n_chunks = max(1, min(numba.get_num_threads(), origins.size))
@@ -649,12 +692,15 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
                    pool.links, x)
         _refresh_costs(x, kind, par, so, cost, deriv)
-        first = None
+        od_excess[:] = np.inf
+        first = threshold = -1.0
         for _ in range(inner_max):
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
-                                 pool.counters, mark, mark2)
-            first = excess if first is None else first
+                                 pool.counters, mark, mark2, keep, od_excess, threshold)
+            if first < 0:
+                first = excess
+                threshold = 0.1 * warm_ratio * first / n_od
             if excess <= warm_ratio * first:
                 break
     while True:
@@ -698,11 +744,14 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         while od < n_od:
             pool.reserve(n_od - od + 1, (n_od - od + 1) * 8 + n_nodes)
             od, _ = _column_pass(od, need, od_row, od_dnode, od_q, sp.tail, pred, x, kind, par,
-                                 so, cost, deriv, *pool.args(), mark, mark2, work)
+                                 so, cost, deriv, *pool.args(), mark, mark2, work, keep,
+                                 od_excess)
+        # pairs whose excess is a negligible share of the total wait for the next pass
+        threshold = 0.1 * inner_ratio * excess_start / n_od
         for _ in range(inner_max):
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
-                                 pool.counters, mark, mark2)
+                                 pool.counters, mark, mark2, keep, od_excess, threshold)
             if excess <= inner_ratio * excess_start:
                 break
             if time_limit is not None and time.perf_counter() - start_time > time_limit:
