@@ -17,6 +17,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
@@ -27,7 +28,7 @@ from congest.equilibrium import Problem
 from congest.network import Network
 from congest.paths import ShortestPaths
 
-SETTINGS = settings(max_examples=15, deadline=None, derandomize=True)
+SETTINGS = settings(max_examples=30, deadline=None, derandomize=True)
 TOL = 1e-7
 
 network_options = st.fixed_dictionaries({
@@ -47,8 +48,12 @@ def make(options, **overrides):
     return random_network(rng, **opts)
 
 
-def solve(net, objective):
-    return congest.solve(net, objective=objective, tol=TOL, max_iter=20_000)
+#: The default method and the bi-conjugate Frank-Wolfe (the fastest link-based one).
+METHODS = ["auto", "bfw"]
+
+
+def solve(net, objective, method="auto"):
+    return congest.solve(net, objective=objective, method=method, tol=TOL, max_iter=20_000)
 
 
 def reduced_cost_excess(net, res):
@@ -73,12 +78,13 @@ def reduced_cost_excess(net, res):
     return excess, big_g, r_min
 
 
+@pytest.mark.parametrize("method", METHODS)
 @SETTINGS
-@given(network_options)
-def test_feasible_and_gap_nonnegative(options):
+@given(options=network_options)
+def test_feasible_and_gap_nonnegative(options, method):
     net = make(options)
     for objective in ("ue", "so"):
-        res = solve(net, objective)
+        res = solve(net, objective, method)
         assert res.converged
         assert np.all(res.flow >= 0)
         assert res.conservation_error <= 1e-9 * net.total_demand
@@ -90,20 +96,22 @@ def test_feasible_and_gap_nonnegative(options):
         assert_allclose(sptt, tstt * (1 - res.relative_gap), rtol=1e-9)
 
 
+@pytest.mark.parametrize("method", METHODS)
 @SETTINGS
-@given(network_options)
-def test_system_optimum_costs_no_more_than_user_equilibrium(options):
+@given(options=network_options)
+def test_system_optimum_costs_no_more_than_user_equilibrium(options, method):
     net = make(options)
-    ue, so = solve(net, "ue"), solve(net, "so")
+    ue, so = solve(net, "ue", method), solve(net, "so", method)
     so_gap = so.relative_gap * float(so.flow @ Problem(net, "so").gradient(so.flow))
     assert so.total_cost <= ue.total_cost + so_gap + 1e-9 * ue.total_cost
 
 
+@pytest.mark.parametrize("method", METHODS)
 @SETTINGS
-@given(network_options)
-def test_used_links_lie_on_shortest_paths(options):
+@given(options=network_options)
+def test_used_links_lie_on_shortest_paths(options, method):
     net = make(options)
-    res = solve(net, "ue")
+    res = solve(net, "ue", method)
     excess, big_g, r_min = reduced_cost_excess(net, res)
     assert np.all(r_min >= -1e-9 * np.abs(res.cost).max())
     # the reported gap is not understated ...
@@ -112,23 +120,25 @@ def test_used_links_lie_on_shortest_paths(options):
     assert excess <= TOL * res.total_cost * (1 + 1e-9) + 1e-9
 
 
+@pytest.mark.parametrize("method", METHODS)
 @SETTINGS
-@given(network_options)
-def test_single_origin_reduced_cost_identity(options):
+@given(options=network_options)
+def test_single_origin_reduced_cost_identity(options, method):
     # With one origin the link flows are the origin's flows: sum_a x_a r_a = G exactly.
     net = make(options)
     demand = np.zeros_like(net.demand)
     demand[0] = net.demand[0]
     demand[0, 1:] += 10.0
     net = net.replace(demand=demand)
-    res = solve(net, "ue")
+    res = solve(net, "ue", method)
     excess, big_g, _ = reduced_cost_excess(net, res)
     assert_allclose(excess, big_g, rtol=1e-6, atol=1e-9 * res.total_cost)
 
 
+@pytest.mark.parametrize("method", METHODS)
 @SETTINGS
-@given(st.integers(0, 2**31 - 1), st.sampled_from(["ue", "so"]))
-def test_equilibrium_on_a_tree_is_all_or_nothing(seed, objective):
+@given(seed=st.integers(0, 2**31 - 1), objective=st.sampled_from(["ue", "so"]))
+def test_equilibrium_on_a_tree_is_all_or_nothing(seed, objective, method):
     rng = np.random.default_rng(seed)
     n = int(rng.integers(3, 12))
     parent = [int(rng.integers(0, i)) for i in range(1, n)]
@@ -141,6 +151,6 @@ def test_equilibrium_on_a_tree_is_all_or_nothing(seed, objective):
                   free_flow_time=rng.uniform(1, 5, tail.size), zone_ids=np.arange(zones.size),
                   zone_nodes=zones, demand=demand, through_centroids=True)
     aon, _ = ShortestPaths(net).all_or_nothing(net.free_flow_time)
-    res = solve(net, objective)
+    res = solve(net, objective, method)
     assert_allclose(res.flow, aon, rtol=1e-12, atol=1e-9)
     assert res.relative_gap <= 1e-12
