@@ -62,6 +62,7 @@ __all__ = ["solve_gp", "RouteState"]
 _T0, _ALPHA, _BETA, _CAP, _CONST, _PRELOAD = range(6)
 # slots of the counter array
 _N_PATHS, _POOL_USED, _DEAD_LINKS, _STAMP = range(4)
+_STALL = 25  # iterations without a better gap after which the solver gives up
 
 
 @dataclass(frozen=True, eq=False)
@@ -703,6 +704,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
                 threshold = 0.1 * warm_ratio * first / n_od
             if excess <= warm_ratio * first:
                 break
+    best_gap = (np.inf, 0)
     while True:
         _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
                    pool.links, x)
@@ -735,6 +737,14 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
             break
         if k >= max_iter:
             message = f"iteration cap {max_iter} reached at relative gap {gap:.3g}"
+            break
+        if gap < best_gap[0]:
+            best_gap = (gap, k)
+        elif k - best_gap[1] >= _STALL:
+            # rounding, not the method, limits the gap (a target below what float64
+            # sums of route costs resolve)
+            message = (f"no progress for {_STALL} iterations: relative gap "
+                       f"{best_gap[0]:.3g} is the limit of rounding here")
             break
         k += 1
         excess_start = max(tstt - sptt, 0.0)

@@ -306,3 +306,32 @@ def test_history_and_callback():
     with pytest.warns(ConvergenceWarning):
         stopped = solve(net, method="gp", tol=1e-14, callback=lambda k, x, gap: k >= 2)
     assert stopped.iterations == 2 and "callback" in stopped.message
+
+
+def test_unreachable_target_stops_at_rounding_limit():
+    # a gap far below float64 resolution: the solver must stop by itself, not run to
+    # its iteration cap
+    import warnings
+
+    net = random_network(5)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        eq = solve(net, method="gp", tol=1e-300)
+    assert eq.iterations < 100
+    assert eq.relative_gap < 1e-13
+
+
+def test_warm_start_from_ue_to_so():
+    net = random_network(9)
+    ue = solve(net, method="gp", tol=1e-12)
+    cold = solve(net, objective="so", method="gp", tol=1e-12)
+    warm = solve(net, objective="so", method="gp", tol=1e-12, warm_start=ue)
+    np.testing.assert_allclose(warm.flow, cold.flow, rtol=1e-7, atol=1e-8)
+
+
+def test_bad_options():
+    net = random_network(2)
+    with pytest.raises(SolverError):
+        solve(net, method="gp", inner_ratio=-1.0)
+    with pytest.raises(SolverError):
+        solve(net, method="gp", max_iter=0)
