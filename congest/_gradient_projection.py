@@ -695,15 +695,21 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         _refresh_costs(x, kind, par, so, cost, deriv)
         od_excess[:] = np.inf
         first = threshold = -1.0
+        full = True
         for _ in range(inner_max):
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
-                                 pool.counters, mark, mark2, keep, od_excess, threshold)
+                                 pool.counters, mark, mark2, keep, od_excess,
+                                 -1.0 if full else threshold)
             if first < 0:
                 first = excess
                 threshold = 0.1 * warm_ratio * first / n_od
-            if excess <= warm_ratio * first:
-                break
+            elif excess <= warm_ratio * first:
+                if full:
+                    break
+                full = True
+                continue
+            full = False
     best_gap = (np.inf, 0)
     while True:
         _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
@@ -758,12 +764,18 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
                                  od_excess)
         # pairs whose excess is a negligible share of the total wait for the next pass
         threshold = 0.1 * inner_ratio * excess_start / n_od
+        full = False
         for _ in range(inner_max):
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
-                                 pool.counters, mark, mark2, keep, od_excess, threshold)
+                                 pool.counters, mark, mark2, keep, od_excess,
+                                 -1.0 if full else threshold)
             if excess <= inner_ratio * excess_start:
-                break
+                if full:
+                    break
+                full = True  # the skipped pairs may have drifted: confirm on all of them
+            else:
+                full = False
             if time_limit is not None and time.perf_counter() - start_time > time_limit:
                 break
         if pool.counters[_DEAD_LINKS] > max(pool.counters[_POOL_USED] // 2, 1024):
