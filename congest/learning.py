@@ -117,17 +117,27 @@ def _route_flows(continuum, share, cur, follower, follow_share, adv, agent_mass,
 
 
 @numba.njit(cache=True, parallel=True)
-def _link_costs(route_flow, l_rptr, l_ridx, kind, t0, alpha, beta, cap, const, xi, noisy,
+def _link_costs(route_flow, r_lptr, r_lidx, kind, t0, alpha, beta, cap, const, xi, noisy,
                 x, t_act, c_nom):
-    """Link flows, actual travel times (capacity factor ``xi``) and nominal costs."""
+    """Link flows, actual travel times (capacity factor ``xi``) and nominal costs.
+
+    Flows are scattered route by route into the (small, cache-resident) link array, one
+    replication per thread; costs are then filled per link.
+    """
     n_rep, n_links = x.shape
+    n_routes = r_lptr.size - 1
+    for r in numba.prange(n_rep):
+        for e in range(n_links):
+            x[r, e] = 0.0
+        for p in range(n_routes):
+            v = route_flow[r, p]
+            if v != 0.0:
+                for k in range(r_lptr[p], r_lptr[p + 1]):
+                    x[r, r_lidx[k]] += v
     for item in numba.prange(n_rep * n_links):
         r = item // n_links
         e = item - r * n_links
-        v = 0.0
-        for k in range(l_rptr[e], l_rptr[e + 1]):
-            v += route_flow[r, l_ridx[k]]
-        x[r, e] = v
+        v = x[r, e]
         nominal = time_scalar(kind[e], t0[e], alpha[e], beta[e], cap[e], v)
         c_nom[r, e] = nominal + const[e]
         if noisy:
@@ -235,6 +245,33 @@ def _network_sptt(cost, origins, zone_nodes, demand, indptr, adj_link, adj_head,
                                       indptr, adj_link, adj_head, cost[r], blocked, dist,
                                       heap_key, heap_node)
     return part.sum(axis=1)
+
+
+@numba.njit(cache=True, nogil=True)
+def _network_sptt_nogil(cost, origins, zone_nodes, demand, indptr, adj_link, adj_head,
+                        blocked):
+    """:func:`_network_sptt` on one thread without the GIL (runs beside the day loop)."""
+    n_rep = cost.shape[0]
+    n_nodes = indptr.size - 1
+    n_links = adj_link.size
+    is_dest = np.zeros(n_nodes, dtype=np.int64)
+    for z in range(zone_nodes.size):
+        is_dest[zone_nodes[z]] = z + 1
+    dist = np.empty(n_nodes)
+    heap_key = np.empty(n_links + 1)
+    heap_node = np.empty(n_links + 1, dtype=np.int64)
+    out = np.zeros(n_rep)
+    for r in range(n_rep):
+        for i in range(origins.size):
+            oz = origins[i]
+            n_dest = 0
+            for dz in range(zone_nodes.size):
+                if demand[oz, dz] > 0.0:
+                    n_dest += 1
+            out[r] += _origin_sptt(zone_nodes[oz], demand[oz], zone_nodes, is_dest, n_dest,
+                                   indptr, adj_link, adj_head, cost[r], blocked, dist,
+                                   heap_key, heap_node)
+    return out
 
 
 @numba.njit(cache=True, parallel=True)
@@ -573,12 +610,9 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
     total_q = float(q_od.sum())
     ue_flow = np.asarray(equilibrium.flow, dtype=np.float64)
 
-    # route -> links and link -> routes (transpose), both CSR
+    # route -> links (CSR)
     r_lptr = np.ascontiguousarray(rs.link_indptr, dtype=np.int64)
     r_lidx = np.ascontiguousarray(rs.link_index, dtype=np.int64)
-    inc = rs.incidence.tocsr()
-    l_rptr = np.ascontiguousarray(inc.indptr, dtype=np.int64)
-    l_ridx = np.ascontiguousarray(inc.indices, dtype=np.int64)
 
     model = CostModel.from_network(network)
     sp = ShortestPaths(network)
@@ -700,7 +734,23 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
     if workers is None:
         work = R * (r_lidx.size + n_agents * width + sp.origins.size * network.n_links)
         workers = previous_threads if work > 200_000 else 1
-    numba.set_num_threads(max(1, min(int(workers), numba.config.NUMBA_NUM_THREADS)))
+    workers = max(1, min(int(workers), numba.config.NUMBA_NUM_THREADS))
+    # With fewer replications than threads, the whole-network gap of each day runs on a
+    # thread of its own beside the day loop (which then uses the remaining threads);
+    # otherwise the kernels share all threads over replications.
+    pool = None
+    if workers >= 2 and R < workers:
+        from concurrent.futures import ThreadPoolExecutor
+
+        pool = ThreadPoolExecutor(max_workers=1)
+        workers -= 1
+    numba.set_num_threads(workers)
+    pending = None
+
+    def gap_args(cost):
+        return (cost, sp.origins, sp.zone_nodes, demand, sp.indptr, sp.adj_link,
+                sp.adj_head, sp.blocked)
+
     for t in range(days):
         if supply_noise > 0:
             for r, g in enumerate(rngs):
@@ -714,7 +764,7 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
 
         _route_flows(continuum, share, cur, follower, follow_share, adv, agent_mass,
                      od_agent_ptr, od_ptr, n_routes, f)
-        _link_costs(f, l_rptr, l_ridx, model.kind, model.t0, model.alpha, model.beta,
+        _link_costs(f, r_lptr, r_lidx, model.kind, model.t0, model.alpha, model.beta,
                     model.capacity, model.constant, xi, supply_noise > 0, x, t_act, c_nom)
         np.add(t_act, model.constant[None, :], out=c_act)
         _route_costs(c_act, c_nom, supply_noise > 0, r_lptr, r_lidx, c_route, c_route_nom)
@@ -732,9 +782,15 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
         rs_sptt = od_min @ q_od
         rec["route_set_gap"][t] = _gaps(tstt_nom, rs_sptt)
         if t % gap_every == 0 or t == days - 1:
-            sptt = _network_sptt(c_nom, sp.origins, sp.zone_nodes, demand, sp.indptr,
-                                 sp.adj_link, sp.adj_head, sp.blocked, n_chunks)
-            rec["relative_gap"][t] = _gaps(tstt_nom, sptt)
+            if pool is None:
+                sptt = _network_sptt(*gap_args(c_nom), n_chunks)
+                rec["relative_gap"][t] = _gaps(tstt_nom, sptt)
+            else:
+                if pending is not None:
+                    day, tstt_day, future = pending
+                    rec["relative_gap"][day] = _gaps(tstt_day, future.result())
+                pending = (t, tstt_nom, pool.submit(_network_sptt_nogil,
+                                                    *gap_args(c_nom.copy())))
         rec["distance_to_ue"][t] = np.linalg.norm(x - ue_flow[None, :], axis=1) / ue_norm
         if f_prev is not None and continuum:
             rec["switching_share"][t] = 0.5 * np.abs(f - f_prev).sum(axis=1) / total_q
@@ -776,6 +832,11 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
             else:
                 adv[:] = od_arg
 
+    if pool is not None:
+        if pending is not None:
+            day, tstt_day, future = pending
+            rec["relative_gap"][day] = _gaps(tstt_day, future.result())
+        pool.shutdown()
     mean_x = sum_x / days
     mean_f = sum_f / days
     average_gap = np.empty(R)
