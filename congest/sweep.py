@@ -24,8 +24,9 @@ With ``store=FOLDER`` every finished point is written at once, atomically, to
 ``FOLDER/<key>.json``, where ``key`` hashes the network's content, the solver settings
 and the point. Running the sweep again with the same arguments loads those points and
 computes only the others; points not yet done at the start of a chain are started cold.
-A worker that dies is retried (``retries``); a point that fails is reported with its
-error in :attr:`SweepResult.failed` and does not stop the others.
+A point whose worker dies is rerun elsewhere (``retries``); a point that fails, or whose
+worker died once too often, is reported with its error in :attr:`SweepResult.failed`
+and does not stop the others (the rest of its chain starts cold).
 
 Columns
 -------
@@ -473,8 +474,9 @@ def _json_row(row):
 
 
 # ------------------------------------------------------------------ engines
-def _client_for(scheduler, n_workers, processes):
-    """(client, owned) for ``scheduler``; owned clients are closed by the caller."""
+def _client_for(scheduler, n_workers, processes, retries):
+    """(client, cluster) for ``scheduler``; an embedded cluster is closed by the caller."""
+    import dask
     from distributed import Client, LocalCluster
 
     if isinstance(scheduler, Client):
@@ -482,8 +484,10 @@ def _client_for(scheduler, n_workers, processes):
     if isinstance(scheduler, str):
         return Client(scheduler), None
     n = n_workers or os.cpu_count() or 1
-    cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=processes,
-                           dashboard_address=None, silence_logs=40)
+    # a task whose worker dies is rerun on another (or a restarted) worker this often
+    with dask.config.set({"distributed.scheduler.allowed-failures": retries}):
+        cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=processes,
+                               dashboard_address=None, silence_logs=40)
     return Client(cluster), cluster
 
 
@@ -549,23 +553,33 @@ def _run_dask(net, settings, chains, run, client, retries):
 
     for chain in chains:
         submit(chain, 0)
+    second_tries = set()
     stopped = False
     try:
         for fut in ac:
-            chain, pos = pending.pop(fut)
-            if fut.status == "error":
-                # the worker died more often than retries allow (or the task could not be
-                # sent back): report the point and start the rest of its chain cold
-                err = fut.exception()
+            entry = pending.pop(fut, None)
+            if entry is None:
+                continue  # cancelled after an earlier point of its chain failed
+            chain, pos = entry
+            try:
+                row, error = fut.result()
+            except Exception as err:  # noqa: BLE001 - reported with the point
+                # Dask gave up on the task: its worker died more often than allowed, or
+                # it could not be run or sent back. A worker's death also fails the
+                # tasks running beside it there, so a point gets one fresh attempt
+                # before it is reported; the rest of its chain restarts cold either way.
                 later = [f for f, (c, p) in pending.items() if c is chain and p > pos]
                 for f in later:
                     del pending[f]
                 client.cancel(later)
+                point = chain[pos]
+                if point not in second_tries:
+                    second_tries.add(point)
+                    submit(chain, pos)
+                    continue
                 if pos + 1 < len(chain):
                     submit(chain, pos + 1)
                 row, error = None, f"{type(err).__name__}: {err}"
-            else:
-                row, error = fut.result()
             if run.finish(chain[pos], row, error):
                 stopped = True
                 break
@@ -614,7 +628,10 @@ def sweep(net, demand_scales, *, toll_scales=None, advice_shares=None, scenarios
     chunk_size : int, default 5
         Points per warm-start chain.
     retries : int, default 2
-        How often a point is rerun after its worker died.
+        How often a point is rerun after its worker died (the embedded cluster's
+        ``allowed-failures``; a running cluster keeps its own setting) and after an
+        error in Dask itself. Errors in the computation are not retried: the point
+        is reported as failed.
     numba_threads : int, optional
         Threads of the compiled kernels in each point. Default: cores / workers in the
         embedded cluster, numba's own setting elsewhere. The all-or-nothing loading
@@ -693,7 +710,7 @@ def sweep(net, demand_scales, *, toll_scales=None, advice_shares=None, scenarios
         if scheduler == "serial":
             stopped = _run_serial(net, settings, chains, run)
         else:
-            client, cluster = _client_for(scheduler, n_workers, processes)
+            client, cluster = _client_for(scheduler, n_workers, processes, int(retries))
             try:
                 stopped = _run_dask(net, settings, chains, run, client, int(retries))
             finally:

@@ -185,6 +185,7 @@ sys.path.insert(0, {folder!r})
 import congest.equilibrium as equilibrium
 
 equilibrium.METHODS["dies_once"] = "congest_dies_once:solve"
+equilibrium.METHODS["dies_at_two"] = "congest_dies_once:dies_at_two"
 '''
 
 DIES_ONCE = '''
@@ -199,23 +200,37 @@ def solve(problem, **kw):
         open(MARKER, "w").close()
         os._exit(1)  # the worker process dies mid-point
     return solve_fw(problem, **kw)
+
+
+def dies_at_two(problem, **kw):
+    if problem.network.total_demand == 2.0:
+        os._exit(1)  # every time
+    return solve(problem, **kw)
 '''
 
 
 def test_worker_that_dies_is_retried(tmp_path):
+    # a point whose worker dies is rerun (Dask's allowed-failures); one that kills its
+    # worker every time is reported after that many reruns and the others still finish
+    import dask
     from distributed import Client, LocalCluster
 
     (tmp_path / "congest_dies_once.py").write_text(
         DIES_ONCE.format(marker=str(tmp_path / "died")))
     preload = tmp_path / "preload.py"
     preload.write_text(WORKER_PRELOAD.format(folder=str(tmp_path)))
-    with LocalCluster(n_workers=1, threads_per_worker=1, processes=True,
-                      dashboard_address=None, silence_logs=50,
-                      preload=[str(preload)]) as cluster, Client(cluster) as client:
+    with dask.config.set({"distributed.scheduler.allowed-failures": 1}), LocalCluster(
+            n_workers=1, threads_per_worker=1, processes=True, dashboard_address=None,
+            silence_logs=50, preload=[str(preload)]) as cluster, Client(cluster) as client:
         res = sweep(pigou(), [0.5, 1.0, 2.0], scheduler=client, method="dies_once",
-                    tol=1e-10, retries=2)
+                    tol=1e-10)
+        bad = sweep(pigou(), [1.0, 2.0, 3.0], scheduler=client, method="dies_at_two",
+                    tol=1e-10)
     assert not res.failed, res.failed
     assert (tmp_path / "died").exists()
+    assert [p.demand_scale for p, _ in bad.failed] == [2.0]
+    assert "KilledWorker" in bad.failed[0][1]
+    assert bad.table["demand_scale"].tolist() == [1.0, 3.0]
     assert not res.failed
     # Pigou (1920) closed form with q0 = 1: PoA 1, 4/3 and 2 / 1.75
     np.testing.assert_allclose(res.table["price_of_anarchy"], [1.0, 4 / 3, 2 / 1.75],
@@ -267,3 +282,17 @@ def test_default_local_cluster_of_processes_gives_the_serial_table():
     cluster = sweep(net, levels, n_workers=2, **kw)
     pd.testing.assert_frame_equal(_results(serial.table), _results(cluster.table),
                                   check_exact=True)
+
+
+def test_scenario_columns_from_compare():
+    # Pigou (1920), costs 1 and x: free-flow advice sends all q drivers to the variable
+    # link (free-flow cost 0), total q^2; SO total is q^2 for q <= 1/2, q - 1/4 above
+    res = sweep(pigou(), [0.25, 1.0, 2.0], scheduler="serial", tol=1e-10,
+                scenarios=("free_flow_advice", "marginal_cost_tolls"))
+    assert not res.failed
+    t = res.table
+    q = t["demand_scale"].to_numpy()
+    so = np.where(q <= 0.5, q**2, q - 0.25)
+    np.testing.assert_allclose(t["free_flow_advice_ratio_to_so"], q**2 / so, rtol=1e-8)
+    np.testing.assert_allclose(t["marginal_cost_tolls_ratio_to_so"], 1.0, atol=1e-8)
+    assert "free_flow_advice_label" not in t  # text columns are left out
