@@ -115,8 +115,11 @@ BECKMANN = {
 
 def _check_reference(name):
     net = load_reference(name)
-    eq = solve(net, method="gp", tol=1e-12)
-    assert eq.converged and eq.relative_gap <= 1e-12
+    # a flow error is about the cost error over t'(v): on nearly free-flowing links t'
+    # is tiny, so 1e-6 relative on every link needs a gap below 1e-12 (Anaheim leaves
+    # 2e-6 on two such links at a gap of 6e-13)
+    eq = solve(net, method="gp", tol=1e-13)
+    assert eq.converged and eq.relative_gap <= 1e-13
     assert np.isfinite(eq.flow).all() and (eq.flow >= 0).all()
     ref = reference_ue_flows(name)
     # UE link flows are unique only where the link cost is strictly increasing
