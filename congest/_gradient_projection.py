@@ -5,9 +5,9 @@ Every OD pair keeps the set of routes it uses, with their flows. One iteration:
 1. link flows are summed from the route flows (so they are exact, not drifted) and the
    link costs of the objective are evaluated (generalized cost for UE, marginal cost
    ``t(w) + w t'(w) + constant`` at ``w = flow + preload`` for SO);
-2. shortest-path trees from every origin, in parallel; they give the relative gap of
-   the current flows and, for each OD pair, a route that joins its set if it is new
-   (column generation);
+2. shortest-path trees from every origin (in parallel on large networks); they give
+   the relative gap of the current flows and, for each OD pair, a route that joins its
+   set if it is new (column generation);
 3. each OD pair moves flow from its dearer routes to its cheapest one with a Newton
    step (Jayakrishnan et al. 1994): ``delta_p = min(f_p, (c_p - c_b) / D_p)`` with
    ``D_p`` the sum of the cost derivatives on the links where route ``p`` and the
@@ -18,17 +18,19 @@ Every OD pair keeps the set of routes it uses, with their flows. One iteration:
    its flow between two routes and rediscover the other one iteration after iteration;
 4. inner passes repeat step 3 over the fixed route sets (no shortest paths) until the
    excess cost is a small share of the iteration's start, since they are much cheaper
-   than step 2 (the inner loop of Chen, Jayakrishnan & Tsai 2002). They visit only the
+   than step 2 (an inner loop in the spirit of [2]_). They visit only the
    OD pairs whose excess at their last visit was not negligible.
 
 Memory is proportional to the number of links plus the total length of the used routes
 (a pool of link indices, compacted when half of it belongs to dropped routes), plus one
 predecessor array per origin. Every loop over links, OD pairs or routes is compiled with
-numba; the shortest-path trees run in parallel over origins.
+numba; the shortest-path trees run in parallel over origins when the network is large
+enough for threads to pay (small ones run on one thread).
 
 A warm start takes the route sets of an earlier result of the same network and scales
-their flows to the new demand of each OD pair; after a toll, capacity or small demand
-change most routes stay, so few iterations are needed.
+their flows to the new demand of each OD pair, then re-balances them at the new costs
+with inner passes before the first shortest-path pass; after a toll, capacity or small
+demand change most routes stay, so fewer iterations are needed.
 
 References
 ----------
@@ -37,7 +39,7 @@ References
    75-83.
 .. [2] Chen, A., Jayakrishnan, R. & Tsai, W.K. (2002). Faster Frank-Wolfe traffic
    assignment with new flow update scheme. Journal of Transportation Engineering 128(1),
-   31-39.
+   31-39. (Details from memory.)
 .. [3] Bertsekas, D.P. & Gafni, E.M. (1982). Projection methods for variational
    inequalities with application to the traffic assignment problem. Mathematical
    Programming Study 17, 139-159.
