@@ -46,7 +46,9 @@ taken up by the share of drivers who drove it (the mean-field form of the same r
 Randomness comes from one :class:`numpy.random.SeedSequence` spawned into one
 :class:`numpy.random.Generator` per replication, so results depend only on ``seed``
 (not on the number of threads). Replications run together in the compiled kernels,
-which are parallel over replications and OD pairs or drivers.
+which are parallel over replications and OD pairs or drivers; with fewer replications
+than threads, each day's whole-network gap (one shortest-path tree per origin) runs on
+its own thread beside the rest of the day loop.
 
 References
 ----------
@@ -75,7 +77,6 @@ import numpy as np
 
 from .costs import CostModel, time_scalar
 from .paths import ShortestPaths
-from .routesets import _heap_pop, _heap_push
 
 __all__ = ["simulate", "LearningResult", "RULES", "SCHEDULES", "INFORMATION"]
 
@@ -184,21 +185,72 @@ def _od_best(route_value, od_ptr, out_min, out_arg):
         out_arg[r, od] = best
 
 
+@numba.njit(cache=True, inline="always")
+def _sift_up(key, node, pos, i):
+    k = key[i]
+    v = node[i]
+    while i > 0:
+        parent = (i - 1) >> 1
+        if key[parent] > k:
+            key[i] = key[parent]
+            node[i] = node[parent]
+            pos[node[i]] = i
+            i = parent
+        else:
+            break
+    key[i] = k
+    node[i] = v
+    pos[v] = i
+
+
+@numba.njit(cache=True, inline="always")
+def _sift_down(key, node, pos, i, size):
+    k = key[i]
+    v = node[i]
+    while True:
+        child = 2 * i + 1
+        if child >= size:
+            break
+        if child + 1 < size and key[child + 1] < key[child]:
+            child += 1
+        if key[child] < k:
+            key[i] = key[child]
+            node[i] = node[child]
+            pos[node[i]] = i
+            i = child
+        else:
+            break
+    key[i] = k
+    node[i] = v
+    pos[v] = i
+
+
 @numba.njit(cache=True)
-def _origin_sptt(origin, demand_row, zone_nodes, is_dest, n_dest, indptr, adj_link, adj_head,
-                 cost, blocked, dist, heap_key, heap_node):
-    """``sum_d q_od * dist(o, d)`` for one origin; stops once every destination with
-    demand is settled. ``is_dest`` marks (node -> zone index + 1) destinations."""
+def _origin_sptt(origin, demand_row, is_dest, n_dest, indptr, adj_link, adj_head, cost,
+                 blocked, dist, pos, heap_key, heap_node):
+    """``sum_d q_od * dist(o, d)`` for one origin (Dijkstra with an indexed binary heap
+    and decrease-key); stops once every destination with demand is settled.
+    ``is_dest[node]`` is the zone index + 1 of a centroid, else 0."""
     for i in range(dist.size):
         dist[i] = np.inf
+        pos[i] = -1
     dist[origin] = 0.0
-    size = _heap_push(heap_key, heap_node, 0, 0.0, origin)
+    heap_key[0] = 0.0
+    heap_node[0] = origin
+    pos[origin] = 0
+    size = 1
     total = 0.0
     left = n_dest
     while size > 0 and left > 0:
-        d, u, size = _heap_pop(heap_key, heap_node, size)
-        if d > dist[u]:
-            continue
+        u = heap_node[0]
+        d = heap_key[0]
+        size -= 1
+        pos[u] = -2  # settled
+        if size > 0:
+            heap_key[0] = heap_key[size]
+            heap_node[0] = heap_node[size]
+            pos[heap_node[0]] = 0
+            _sift_down(heap_key, heap_node, pos, 0, size)
         z = is_dest[u] - 1
         if z >= 0 and demand_row[z] > 0.0:
             total += demand_row[z] * d
@@ -210,7 +262,15 @@ def _origin_sptt(origin, demand_row, zone_nodes, is_dest, n_dest, indptr, adj_li
             nd = d + cost[adj_link[k]]
             if nd < dist[v]:
                 dist[v] = nd
-                size = _heap_push(heap_key, heap_node, size, nd, v)
+                if pos[v] == -1:
+                    heap_key[size] = nd
+                    heap_node[size] = v
+                    pos[v] = size
+                    size += 1
+                    _sift_up(heap_key, heap_node, pos, size - 1)
+                else:
+                    heap_key[pos[v]] = nd
+                    _sift_up(heap_key, heap_node, pos, pos[v])
     if left > 0:
         return np.inf
     return total
@@ -223,7 +283,6 @@ def _network_sptt(cost, origins, zone_nodes, demand, indptr, adj_link, adj_head,
     n_rep = cost.shape[0]
     n_orig = origins.size
     n_nodes = indptr.size - 1
-    n_links = adj_link.size
     is_dest = np.zeros(n_nodes, dtype=np.int64)
     for z in range(zone_nodes.size):
         is_dest[zone_nodes[z]] = z + 1
@@ -231,8 +290,9 @@ def _network_sptt(cost, origins, zone_nodes, demand, indptr, adj_link, adj_head,
     total = n_rep * n_orig
     for c in numba.prange(n_chunks):
         dist = np.empty(n_nodes)
-        heap_key = np.empty(n_links + 1)
-        heap_node = np.empty(n_links + 1, dtype=np.int64)
+        pos = np.empty(n_nodes, dtype=np.int64)
+        heap_key = np.empty(n_nodes)
+        heap_node = np.empty(n_nodes, dtype=np.int64)
         for item in range(c, total, n_chunks):
             r = item // n_orig
             i = item - r * n_orig
@@ -241,8 +301,8 @@ def _network_sptt(cost, origins, zone_nodes, demand, indptr, adj_link, adj_head,
             for dz in range(zone_nodes.size):
                 if demand[oz, dz] > 0.0:
                     n_dest += 1
-            part[r, i] = _origin_sptt(zone_nodes[oz], demand[oz], zone_nodes, is_dest, n_dest,
-                                      indptr, adj_link, adj_head, cost[r], blocked, dist,
+            part[r, i] = _origin_sptt(zone_nodes[oz], demand[oz], is_dest, n_dest, indptr,
+                                      adj_link, adj_head, cost[r], blocked, dist, pos,
                                       heap_key, heap_node)
     return part.sum(axis=1)
 
@@ -253,13 +313,13 @@ def _network_sptt_nogil(cost, origins, zone_nodes, demand, indptr, adj_link, adj
     """:func:`_network_sptt` on one thread without the GIL (runs beside the day loop)."""
     n_rep = cost.shape[0]
     n_nodes = indptr.size - 1
-    n_links = adj_link.size
     is_dest = np.zeros(n_nodes, dtype=np.int64)
     for z in range(zone_nodes.size):
         is_dest[zone_nodes[z]] = z + 1
     dist = np.empty(n_nodes)
-    heap_key = np.empty(n_links + 1)
-    heap_node = np.empty(n_links + 1, dtype=np.int64)
+    pos = np.empty(n_nodes, dtype=np.int64)
+    heap_key = np.empty(n_nodes)
+    heap_node = np.empty(n_nodes, dtype=np.int64)
     out = np.zeros(n_rep)
     for r in range(n_rep):
         for i in range(origins.size):
@@ -268,8 +328,8 @@ def _network_sptt_nogil(cost, origins, zone_nodes, demand, indptr, adj_link, adj
             for dz in range(zone_nodes.size):
                 if demand[oz, dz] > 0.0:
                     n_dest += 1
-            out[r] += _origin_sptt(zone_nodes[oz], demand[oz], zone_nodes, is_dest, n_dest,
-                                   indptr, adj_link, adj_head, cost[r], blocked, dist,
+            out[r] += _origin_sptt(zone_nodes[oz], demand[oz], is_dest, n_dest, indptr,
+                                   adj_link, adj_head, cost[r], blocked, dist, pos,
                                    heap_key, heap_node)
     return out
 
@@ -610,9 +670,10 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
     total_q = float(q_od.sum())
     ue_flow = np.asarray(equilibrium.flow, dtype=np.float64)
 
-    # route -> links (CSR)
+    # route -> links (CSR); 32-bit link indices halve the memory traffic of the daily
+    # loading and route-cost sweeps
     r_lptr = np.ascontiguousarray(rs.link_indptr, dtype=np.int64)
-    r_lidx = np.ascontiguousarray(rs.link_index, dtype=np.int64)
+    r_lidx = np.ascontiguousarray(rs.link_index, dtype=np.int32)
 
     model = CostModel.from_network(network)
     sp = ShortestPaths(network)

@@ -262,3 +262,23 @@ def test_threads_do_not_change_results():
         two = simulate(net, replications=reps, workers=2, **kw)
         np.testing.assert_array_equal(one.days.to_numpy(), two.days.to_numpy())
         np.testing.assert_array_equal(one.mean_flow, two.mean_flow)
+
+
+def test_day_gap_matches_shortest_path_loading():
+    # the daily whole-network gap equals (TSTT - SPTT) / TSTT from congest.paths'
+    # all-or-nothing loading at the same flows (common practice definition)
+    from conftest import load_reference
+
+    from congest.equilibrium import Problem
+
+    net = load_reference("siouxfalls")
+    eq = solve(net, tol=1e-6)
+    rs = build_route_set(net, k=2, equilibrium=eq)
+    res = simulate(net, rule="smith", days=3, route_set=rs, equilibrium=eq)
+    problem = Problem(net, "ue")
+    x = res.route_set.link_flows(res.route_flow[0])  # the last day's flows
+    np.testing.assert_allclose(x, res.flow[0], rtol=1e-12)
+    cost = problem.gradient(x)
+    _, sptt, _ = problem.all_or_nothing(cost)
+    tstt = float(x @ cost)
+    assert res.days["relative_gap"].iloc[-1] == pytest.approx((tstt - sptt) / tstt, rel=1e-9)
