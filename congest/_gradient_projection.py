@@ -65,6 +65,7 @@ _T0, _ALPHA, _BETA, _CAP, _CONST, _PRELOAD = range(6)
 # slots of the counter array
 _N_PATHS, _POOL_USED, _DEAD_LINKS, _STAMP = range(4)
 _STALL = 25  # iterations without a better gap after which the solver gives up
+_FULL_EVERY = 3  # every third inner pass visits all OD pairs
 
 
 @dataclass(frozen=True, eq=False)
@@ -285,6 +286,29 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
                     if mark2[l] != sp:
                         x[l] += delta
                         _update_link(l, x, kind, par, so, cost, deriv)
+                # Newton overshoots where the cost derivative grows fast along the move
+                # (steep marginal costs of SO): if the routes swapped order, step back
+                # to the secant root between the two points
+                new_diff = 0.0
+                for i in range(p_start[p], p_start[p] + p_len[p]):
+                    new_diff += cost[pool[i]]
+                for i in range(b0, b1):
+                    new_diff -= cost[pool[i]]
+                if new_diff < 0.0:
+                    back = delta * (-new_diff) / (diff - new_diff)
+                    if back > 0.0:
+                        for i in range(p_start[p], p_start[p] + p_len[p]):
+                            l = pool[i]
+                            if mark[l] != sb:
+                                x[l] += back
+                                _update_link(l, x, kind, par, so, cost, deriv)
+                        for i in range(b0, b1):
+                            l = pool[i]
+                            if mark2[l] != sp:
+                                v = x[l] - back
+                                x[l] = v if v > 0.0 else 0.0
+                                _update_link(l, x, kind, par, so, cost, deriv)
+                        delta -= back
                 p_flow[best] += delta
                 f = f - delta if delta < f else 0.0
                 p_flow[p] = f
@@ -618,7 +642,8 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         Most inner passes (route moves without new shortest paths) per iteration.
     inner_ratio : float, default 0.01
         Inner passes stop once a pass finds less excess cost than ``inner_ratio`` times
-        the excess cost at the start of the iteration.
+        the excess cost at the start of the iteration. Each iteration that fails to
+        halve the gap divides the ratio by 10 for the rest of the run.
     warm_ratio : float, default 1e-3
         A warm start first re-balances the earlier routes (inner passes at the new costs)
         until a pass finds less than ``warm_ratio`` times the excess of the first pass.
@@ -713,6 +738,8 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
                 continue
             full = False
     best_gap = (np.inf, 0)
+    ratio = inner_ratio
+    prev_gap = np.inf
     while True:
         _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
                    pool.links, x)
@@ -754,6 +781,11 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
             message = (f"no progress for {_STALL} iterations: relative gap "
                        f"{best_gap[0]:.3g} is the limit of rounding here")
             break
+        # slow progress (OD pairs contending for the same steep links undo each other's
+        # moves) asks for more inner passes per iteration from now on
+        if k > 1 and gap > 0.5 * prev_gap:
+            ratio = 0.0
+        prev_gap = gap
         k += 1
         excess_start = max(tstt - sptt, 0.0)
         _needs_route(od_row, od_d, zdist, cost, pool.od_first, pool.start, pool.length,
@@ -765,19 +797,21 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
                                  so, cost, deriv, *pool.args(), mark, mark2, work, keep,
                                  od_excess)
         # pairs whose excess is a negligible share of the total wait for the next pass
-        threshold = 0.1 * inner_ratio * excess_start / n_od
+        threshold = 0.1 * ratio * excess_start / n_od
         full = False
-        for _ in range(inner_max):
+        for n_pass in range(1, inner_max + 1):
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
                                  pool.counters, mark, mark2, keep, od_excess,
                                  -1.0 if full else threshold)
-            if excess <= inner_ratio * excess_start:
+            if excess <= ratio * excess_start:
                 if full:
                     break
                 full = True  # the skipped pairs may have drifted: confirm on all of them
             else:
-                full = False
+                # pairs with little excess of their own still carry flow between the
+                # links that others contend for: visit all of them now and then
+                full = n_pass % _FULL_EVERY == 0
             if time_limit is not None and time.perf_counter() - start_time > time_limit:
                 break
         if pool.counters[_DEAD_LINKS] > max(pool.counters[_POOL_USED] // 2, 1024):
