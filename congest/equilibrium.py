@@ -117,7 +117,8 @@ def conservation_error(network, flow) -> float:
     net_in = np.bincount(network.head, weights=flow, minlength=n)
     net_in -= np.bincount(network.tail, weights=flow, minlength=n)
     demand_in = np.zeros(n)
-    np.add.at(demand_in, network.zone_nodes, network.demand.sum(axis=0) - network.demand.sum(axis=1))
+    zone_balance = network.demand.sum(axis=0) - network.demand.sum(axis=1)
+    np.add.at(demand_in, network.zone_nodes, zone_balance)
     return float(np.max(np.abs(net_in - demand_in))) if n else 0.0
 
 
