@@ -17,6 +17,50 @@ import numpy as np
 __all__ = ["ShortestPaths"]
 
 
+@numba.njit(cache=True, inline="always")
+def heap_push(heap_key, heap_node, size, key, node):
+    """Push ``(key, node)`` on a binary min-heap of ``size`` entries; returns the new size."""
+    i = size
+    while i > 0:
+        parent = (i - 1) // 2
+        if heap_key[parent] > key:
+            heap_key[i] = heap_key[parent]
+            heap_node[i] = heap_node[parent]
+            i = parent
+        else:
+            break
+    heap_key[i] = key
+    heap_node[i] = node
+    return size + 1
+
+
+@numba.njit(cache=True, inline="always")
+def heap_pop(heap_key, heap_node, size):
+    """Pop the smallest entry; returns ``(key, node, new_size)``."""
+    key0 = heap_key[0]
+    node0 = heap_node[0]
+    size -= 1
+    if size > 0:
+        key = heap_key[size]
+        node = heap_node[size]
+        i = 0
+        while True:
+            child = 2 * i + 1
+            if child >= size:
+                break
+            if child + 1 < size and heap_key[child + 1] < heap_key[child]:
+                child += 1
+            if heap_key[child] < key:
+                heap_key[i] = heap_key[child]
+                heap_node[i] = heap_node[child]
+                i = child
+            else:
+                break
+        heap_key[i] = key
+        heap_node[i] = node
+    return key0, node0, size
+
+
 @numba.njit(cache=True)
 def dijkstra(origin, indptr, adj_link, adj_head, cost, blocked, dist, pred, order,
              heap_key, heap_node):
@@ -25,41 +69,18 @@ def dijkstra(origin, indptr, adj_link, adj_head, cost, blocked, dist, pred, orde
     Fills ``dist`` (inf where unreachable), ``pred`` (link index into each node, -1 at the
     origin and at unreached nodes) and ``order`` (nodes in settling order); returns how
     many nodes were settled. ``heap_key``/``heap_node`` are work arrays of size
-    ``n_links + 1``. ``blocked[u] != 0`` forbids passing through node ``u``.
+    ``n_links + 1`` (binary heap with lazy deletion). ``blocked[u] != 0`` forbids passing
+    through node ``u``.
     """
     n = dist.size
     for i in range(n):
         dist[i] = np.inf
         pred[i] = -1
     dist[origin] = 0.0
-    size = 0
-    heap_key[0] = 0.0
-    heap_node[0] = origin
-    size = 1
+    size = heap_push(heap_key, heap_node, 0, 0.0, origin)
     n_settled = 0
     while size > 0:
-        d = heap_key[0]
-        u = heap_node[0]
-        # pop the root
-        size -= 1
-        if size > 0:
-            key = heap_key[size]
-            node = heap_node[size]
-            i = 0
-            while True:
-                child = 2 * i + 1
-                if child >= size:
-                    break
-                if child + 1 < size and heap_key[child + 1] < heap_key[child]:
-                    child += 1
-                if heap_key[child] < key:
-                    heap_key[i] = heap_key[child]
-                    heap_node[i] = heap_node[child]
-                    i = child
-                else:
-                    break
-            heap_key[i] = key
-            heap_node[i] = node
+        d, u, size = heap_pop(heap_key, heap_node, size)
         if d > dist[u]:
             continue  # stale entry
         order[n_settled] = u
@@ -72,19 +93,7 @@ def dijkstra(origin, indptr, adj_link, adj_head, cost, blocked, dist, pred, orde
             if nd < dist[v]:
                 dist[v] = nd
                 pred[v] = adj_link[k]
-                # push
-                i = size
-                size += 1
-                while i > 0:
-                    parent = (i - 1) // 2
-                    if heap_key[parent] > nd:
-                        heap_key[i] = heap_key[parent]
-                        heap_node[i] = heap_node[parent]
-                        i = parent
-                    else:
-                        break
-                heap_key[i] = nd
-                heap_node[i] = v
+                size = heap_push(heap_key, heap_node, size, nd, v)
     return n_settled
 
 

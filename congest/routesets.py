@@ -31,7 +31,7 @@ import numba
 import numpy as np
 import scipy.sparse as sp
 
-from .paths import ShortestPaths
+from .paths import ShortestPaths, heap_pop, heap_push
 
 __all__ = ["RouteSet", "build_route_set", "k_shortest_paths", "SOURCE_FLAGS"]
 
@@ -218,56 +218,14 @@ def _check_routes(network, o, d, per_od):
 
 # --------------------------------------------------------------------- Yen's algorithm
 @numba.njit(cache=True)
-def _heap_push(heap_key, heap_node, size, key, node):
-    i = size
-    while i > 0:
-        parent = (i - 1) // 2
-        if heap_key[parent] > key:
-            heap_key[i] = heap_key[parent]
-            heap_node[i] = heap_node[parent]
-            i = parent
-        else:
-            break
-    heap_key[i] = key
-    heap_node[i] = node
-    return size + 1
-
-
-@numba.njit(cache=True)
-def _heap_pop(heap_key, heap_node, size):
-    key0 = heap_key[0]
-    node0 = heap_node[0]
-    size -= 1
-    if size > 0:
-        key = heap_key[size]
-        node = heap_node[size]
-        i = 0
-        while True:
-            child = 2 * i + 1
-            if child >= size:
-                break
-            if child + 1 < size and heap_key[child + 1] < heap_key[child]:
-                child += 1
-            if heap_key[child] < key:
-                heap_key[i] = heap_key[child]
-                heap_node[i] = heap_node[child]
-                i = child
-            else:
-                break
-        heap_key[i] = key
-        heap_node[i] = node
-    return key0, node0, size
-
-
-@numba.njit(cache=True)
 def _to_target(target, r_indptr, r_link, r_tail, cost, centroid, h, heap_key, heap_node):
     """Distance from every node to ``target`` (reverse Dijkstra, centroid rule)."""
     for i in range(h.size):
         h[i] = np.inf
     h[target] = 0.0
-    size = _heap_push(heap_key, heap_node, 0, 0.0, target)
+    size = heap_push(heap_key, heap_node, 0, 0.0, target)
     while size > 0:
-        d, u, size = _heap_pop(heap_key, heap_node, size)
+        d, u, size = heap_pop(heap_key, heap_node, size)
         if d > h[u]:
             continue
         if centroid[u] and u != target:
@@ -277,7 +235,7 @@ def _to_target(target, r_indptr, r_link, r_tail, cost, centroid, h, heap_key, he
             nd = d + cost[r_link[k]]
             if nd < h[v]:
                 h[v] = nd
-                size = _heap_push(heap_key, heap_node, size, nd, v)
+                size = heap_push(heap_key, heap_node, size, nd, v)
 
 
 @numba.njit(cache=True)
@@ -297,9 +255,9 @@ def _spur_search(source, target, indptr, adj_link, adj_head, cost, centroid, h,
     result = np.inf
     if h[source] == np.inf:
         return result, n_touched
-    size = _heap_push(heap_key, heap_node, 0, h[source], source)
+    size = heap_push(heap_key, heap_node, 0, h[source], source)
     while size > 0:
-        f, u, size = _heap_pop(heap_key, heap_node, size)
+        f, u, size = heap_pop(heap_key, heap_node, size)
         g = dist[u]
         if f > g + h[u]:
             continue
@@ -320,7 +278,7 @@ def _spur_search(source, target, indptr, adj_link, adj_head, cost, centroid, h,
                     n_touched += 1
                 dist[v] = nd
                 pred[v] = link
-                size = _heap_push(heap_key, heap_node, size, nd + h[v], v)
+                size = heap_push(heap_key, heap_node, size, nd + h[v], v)
     return result, n_touched
 
 
