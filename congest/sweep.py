@@ -533,13 +533,13 @@ def _run_serial(net, settings, chains, run):
 
 
 def _run_dask(net, settings, chains, run, client, retries):
-    from distributed import as_completed
+    from distributed import wait
 
     # a task rather than scattered data: if the worker holding it dies, the scheduler
     # can make it again
     net_future = client.submit(_identity, net, pure=False, retries=retries)
     pending = {}  # row future -> (chain, position)
-    ac = as_completed()
+    second_tries = set()
 
     def submit(chain, first):
         previous = None
@@ -548,41 +548,50 @@ def _run_dask(net, settings, chains, run, client, retries):
                                 pure=False, retries=retries)
             row = client.submit(_outcome_row, out, pure=False, retries=retries)
             pending[row] = (chain, pos)
-            ac.add(row)
             previous = out
+
+    def settle(fut):
+        """Record one finished row future; True if the callback asks to stop."""
+        entry = pending.pop(fut, None)
+        if entry is None:
+            return False  # dropped after an earlier point of its chain failed
+        chain, pos = entry
+        try:
+            row, error = fut.result()
+        except Exception as err:  # noqa: BLE001 - reported with the point
+            # Dask gave up on the task: its worker died more often than allowed, or it
+            # could not be run or sent back. A worker's death also fails the tasks
+            # queued beside it, so a point gets one fresh attempt before it is
+            # reported; the rest of its chain restarts cold either way.
+            if any(c is chain and p < pos for c, p in pending.values()):
+                pending[fut] = entry  # wait: the earlier point's outcome decides
+                time.sleep(0.01)
+                return False
+            later = [f for f, (c, p) in pending.items() if c is chain and p > pos]
+            for f in later:
+                del pending[f]
+            client.cancel(later)
+            point = chain[pos]
+            if point not in second_tries:
+                second_tries.add(point)
+                submit(chain, pos)
+                return False
+            if pos + 1 < len(chain):
+                submit(chain, pos + 1)
+            row, error = None, f"{type(err).__name__}: {err}"
+        return run.finish(chain[pos], row, error)
 
     for chain in chains:
         submit(chain, 0)
-    second_tries = set()
     stopped = False
     try:
-        for fut in ac:
-            entry = pending.pop(fut, None)
-            if entry is None:
-                continue  # cancelled after an earlier point of its chain failed
-            chain, pos = entry
-            try:
-                row, error = fut.result()
-            except Exception as err:  # noqa: BLE001 - reported with the point
-                # Dask gave up on the task: its worker died more often than allowed, or
-                # it could not be run or sent back. A worker's death also fails the
-                # tasks running beside it there, so a point gets one fresh attempt
-                # before it is reported; the rest of its chain restarts cold either way.
-                later = [f for f, (c, p) in pending.items() if c is chain and p > pos]
-                for f in later:
-                    del pending[f]
-                client.cancel(later)
-                point = chain[pos]
-                if point not in second_tries:
-                    second_tries.add(point)
-                    submit(chain, pos)
-                    continue
-                if pos + 1 < len(chain):
-                    submit(chain, pos + 1)
-                row, error = None, f"{type(err).__name__}: {err}"
-            if run.finish(chain[pos], row, error):
-                stopped = True
-                break
+        while pending and not stopped:
+            done, _ = wait(list(pending), return_when="FIRST_COMPLETED")
+            # earlier points of a chain first: their errors explain the later ones
+            for fut in sorted(done, key=lambda f: pending.get(f, (None, -1))[1]):
+                if settle(fut):
+                    stopped = True
+                    break
     finally:
         if pending:
             client.cancel(list(pending))
@@ -591,7 +600,7 @@ def _run_dask(net, settings, chains, run, client, retries):
 
 def sweep(net, demand_scales, *, toll_scales=None, advice_shares=None, scenarios=(),
           scenario_options=None, method="auto", tol=1e-6, max_iter=None, store=None,
-          scheduler=None, n_workers=None, processes=True, chunk_size=5, retries=2,
+          scheduler=None, n_workers=None, processes=True, chunk_size=2, retries=2,
           numba_threads=None, callback=None) -> SweepResult:
     """Solve UE and SO over a range of demand levels (and toll scales, advice shares).
 
@@ -625,8 +634,9 @@ def sweep(net, demand_scales, *, toll_scales=None, advice_shares=None, scenarios
     processes : bool, default True
         Worker processes (True) or threads of this process (False) in the embedded
         cluster.
-    chunk_size : int, default 5
-        Points per warm-start chain.
+    chunk_size : int, default 2
+        Points per warm-start chain. Longer chains warm-start more often; shorter ones
+        spread the work more evenly over the workers (heavy demand levels cost more).
     retries : int, default 2
         How often a point is rerun after its worker died (the embedded cluster's
         ``allowed-failures``; a running cluster keeps its own setting) and after an

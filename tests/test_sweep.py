@@ -190,6 +190,7 @@ equilibrium.METHODS["dies_at_two"] = "congest_dies_once:dies_at_two"
 
 DIES_ONCE = '''
 import os
+import time
 from congest._frank_wolfe import solve_fw
 
 MARKER = {marker!r}
@@ -204,11 +205,13 @@ def solve(problem, **kw):
 
 def dies_at_two(problem, **kw):
     if problem.network.total_demand == 2.0:
+        time.sleep(1.0)  # as a real point takes a while: the rows before it are fetched
         os._exit(1)  # every time
     return solve(problem, **kw)
 '''
 
 
+@pytest.mark.slow  # restarts worker processes; a nanny that fails to restart one stalls it
 def test_worker_that_dies_is_retried(tmp_path):
     # a point whose worker dies is rerun (Dask's allowed-failures); one that kills its
     # worker every time is reported after that many reruns and the others still finish

@@ -128,7 +128,7 @@ def summary_lines(result, net, out):
                    "worker process per core.")
 @click.option("--workers", type=click.IntRange(min=1), default=None,
               help="Worker processes of the local cluster (default: one per core).")
-@click.option("--chunk", type=click.IntRange(min=1), default=5, show_default=True,
+@click.option("--chunk", type=click.IntRange(min=1), default=2, show_default=True,
               help="Demand levels per warm-start chain.")
 @click.option("--retries", type=click.IntRange(min=0), default=2, show_default=True,
               help="Reruns of a point whose worker died.")

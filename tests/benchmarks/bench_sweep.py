@@ -8,7 +8,7 @@ apart, and the speed-up of the cluster over serial.
 
 Run from the project folder::
 
-    python tests/benchmarks/bench_sweep.py [--gap 1e-6] [--levels 0.1:2:20] [--chunk 5]
+    python tests/benchmarks/bench_sweep.py [--gap 1e-6] [--levels 0.1:2:20] [--chunk 2]
 
 Needs the shared reference networks beside the project.
 """
@@ -46,7 +46,7 @@ def main():
     parser.add_argument("--levels", default="0.1:2:20")
     parser.add_argument("--gap", type=float, default=1e-6)
     parser.add_argument("--method", default="auto")
-    parser.add_argument("--chunk", type=int, default=5)
+    parser.add_argument("--chunk", type=int, default=2)
     args = parser.parse_args()
     if not (REFERENCE_DIR / args.network).exists():
         sys.exit(f"reference network {args.network!r} not found under {REFERENCE_DIR}")
