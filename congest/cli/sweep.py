@@ -148,7 +148,7 @@ def command(network, levels, toll_scales, advice_shares, scenarios, method, gap,
     Examples:
       congest sweep networks/quillhaven
       congest sweep networks/quillhaven --levels 0.1:3:30 --toll-scales 0,0.5,1
-      congest sweep big-city --scheduler tcp://10.0.0.5:8786 --gap 1e-8
+      congest sweep big-city --scheduler tcp://scheduler-host:8786 --gap 1e-8
     """
     from ..exceptions import InputError
     from ..io import atomic_write
