@@ -94,8 +94,12 @@ DEFAULTS = {"hedge": (10.0, "sqrt"), "logit": (0.3, "constant"),
 # ------------------------------------------------------------------------- kernels
 @numba.njit(cache=True, parallel=True)
 def _route_flows(continuum, share, cur, follower, follow_share, adv, agent_mass, od_agent_ptr,
-                 od_ptr, n_routes, out):
-    """Route flows ``out`` (R, n_routes) from choices; learners and advice followers."""
+                 od_ptr, n_routes, out, out_sum, moved):
+    """Route flows ``out`` (R, n_routes) from choices; learners and advice followers.
+
+    The new flows are added to ``out_sum``; in the continuum ``moved[r, od]`` is the
+    flow of the pair on other routes than the day before, times two (``sum |f - f'|``).
+    """
     n_rep = out.shape[0]
     n_od = od_ptr.size - 1
     for item in numba.prange(n_rep * n_od):
@@ -103,42 +107,69 @@ def _route_flows(continuum, share, cur, follower, follow_share, adv, agent_mass,
         od = item - r * n_od
         start = od_ptr[od]
         n = od_ptr[od + 1] - start
+        if continuum:
+            # one agent per OD pair
+            a = od_agent_ptr[od]
+            mass = agent_mass[a]
+            best = adv[r, od]
+            change = 0.0
+            for j in range(n):
+                v = 0.0 + mass * (1.0 - follow_share) * share[r, a, j]
+                if j == best:
+                    v += mass * follow_share
+                change += abs(v - out[r, start + j])
+                out[r, start + j] = v
+                out_sum[r, start + j] += v
+            moved[r, od] = change
+            continue
         for j in range(n):
             out[r, start + j] = 0.0
         for a in range(od_agent_ptr[od], od_agent_ptr[od + 1]):
             mass = agent_mass[a]
-            if continuum:
-                for j in range(n):
-                    out[r, start + j] += mass * (1.0 - follow_share) * share[r, a, j]
-                out[r, start + adv[r, od]] += mass * follow_share
-            elif follower[r, a]:
+            if follower[r, a]:
                 out[r, start + adv[r, od]] += mass
             else:
                 out[r, start + cur[r, a]] += mass
+        for j in range(n):
+            out_sum[r, start + j] += out[r, start + j]
+
+
+#: Route blocks of the link loading; a fixed number, so that link flows (sums of the
+#: blocks' partial flows in block order) do not depend on the number of threads.
+LOAD_BLOCKS = 8
 
 
 @numba.njit(cache=True, parallel=True)
 def _link_costs(route_flow, r_lptr, r_lidx, kind, t0, alpha, beta, cap, const, xi, noisy,
-                x, t_act, c_nom):
+                x, t_act, c_nom, part):
     """Link flows, actual travel times (capacity factor ``xi``) and nominal costs.
 
-    Flows are scattered route by route into the (small, cache-resident) link array, one
-    replication per thread; costs are then filled per link.
+    Flows are scattered route by route into small (cache-resident) link arrays ``part``
+    (R, LOAD_BLOCKS, n_links), one block of consecutive routes per task, and the blocks
+    are then added per link in block order; costs are filled per link.
     """
     n_rep, n_links = x.shape
     n_routes = r_lptr.size - 1
-    for r in numba.prange(n_rep):
+    n_blocks = part.shape[1]
+    per_block = (n_routes + n_blocks - 1) // n_blocks
+    for item in numba.prange(n_rep * n_blocks):
+        r = item // n_blocks
+        b = item - r * n_blocks
+        xb = part[r, b]
         for e in range(n_links):
-            x[r, e] = 0.0
-        for p in range(n_routes):
+            xb[e] = 0.0
+        for p in range(b * per_block, min(n_routes, (b + 1) * per_block)):
             v = route_flow[r, p]
             if v != 0.0:
                 for k in range(r_lptr[p], r_lptr[p + 1]):
-                    x[r, r_lidx[k]] += v
+                    xb[r_lidx[k]] += v
     for item in numba.prange(n_rep * n_links):
         r = item // n_links
         e = item - r * n_links
-        v = x[r, e]
+        v = 0.0
+        for b in range(n_blocks):
+            v += part[r, b, e]
+        x[r, e] = v
         nominal = time_scalar(kind[e], t0[e], alpha[e], beta[e], cap[e], v)
         c_nom[r, e] = nominal + const[e]
         if noisy:
@@ -148,8 +179,9 @@ def _link_costs(route_flow, r_lptr, r_lidx, kind, t0, alpha, beta, cap, const, x
 
 
 @numba.njit(cache=True, parallel=True)
-def _route_costs(c_act, c_nom, both, r_lptr, r_lidx, out_act, out_nom):
-    """Route costs (sums over links) at the actual and, if ``both``, the nominal costs."""
+def _route_costs(c_act, c_nom, both, r_lptr, r_lidx, out_act, out_nom, cum_act):
+    """Route costs (sums over links) at the actual and, if ``both``, the nominal costs;
+    the actual ones are added to ``cum_act``."""
     n_rep, n_routes = out_act.shape
     for item in numba.prange(n_rep * n_routes):
         r = item // n_routes
@@ -165,6 +197,7 @@ def _route_costs(c_act, c_nom, both, r_lptr, r_lidx, out_act, out_nom):
                 s += c_act[r, r_lidx[k]]
             s_nom = s
         out_act[r, p] = s
+        cum_act[r, p] += s
         out_nom[r, p] = s_nom
 
 
@@ -226,11 +259,16 @@ def _sift_down(key, node, pos, i, size):
 
 
 @numba.njit(cache=True)
-def _origin_sptt(origin, demand_row, is_dest, n_dest, indptr, adj_link, adj_head, cost,
-                 blocked, dist, pos, heap_key, heap_node):
-    """``sum_d q_od * dist(o, d)`` for one origin (Dijkstra with an indexed binary heap
-    and decrease-key); stops once every destination with demand is settled.
-    ``is_dest[node]`` is the zone index + 1 of a centroid, else 0."""
+def _origin_sptt(origin, oz, zone_nodes, demand, indptr, adj_head, cost_adj, skip, dist,
+                 pos, heap_key, heap_node):
+    """``sum_d q_od * dist(o, d)`` for one origin zone ``oz`` at node ``origin``.
+
+    Dijkstra with an indexed binary heap and decrease-key over the adjacency-ordered
+    costs ``cost_adj``. Nodes with ``skip[v]`` get their distance but are never settled
+    (nothing is relaxed from them): centroids that may not be passed through, and nodes
+    whose links all lead back to the one node they are entered from (a path through them
+    returns where it was, so with non-negative costs it is never shorter).
+    """
     for i in range(dist.size):
         dist[i] = np.inf
         pos[i] = -1
@@ -239,9 +277,7 @@ def _origin_sptt(origin, demand_row, is_dest, n_dest, indptr, adj_link, adj_head
     heap_node[0] = origin
     pos[origin] = 0
     size = 1
-    total = 0.0
-    left = n_dest
-    while size > 0 and left > 0:
+    while size > 0:
         u = heap_node[0]
         d = heap_key[0]
         size -= 1
@@ -251,17 +287,13 @@ def _origin_sptt(origin, demand_row, is_dest, n_dest, indptr, adj_link, adj_head
             heap_node[0] = heap_node[size]
             pos[heap_node[0]] = 0
             _sift_down(heap_key, heap_node, pos, 0, size)
-        z = is_dest[u] - 1
-        if z >= 0 and demand_row[z] > 0.0:
-            total += demand_row[z] * d
-            left -= 1
-        if blocked[u] and u != origin:
-            continue
         for k in range(indptr[u], indptr[u + 1]):
             v = adj_head[k]
-            nd = d + cost[adj_link[k]]
+            nd = d + cost_adj[k]
             if nd < dist[v]:
                 dist[v] = nd
+                if skip[v]:
+                    continue
                 if pos[v] == -1:
                     heap_key[size] = nd
                     heap_node[size] = v
@@ -271,67 +303,76 @@ def _origin_sptt(origin, demand_row, is_dest, n_dest, indptr, adj_link, adj_head
                 else:
                     heap_key[pos[v]] = nd
                     _sift_up(heap_key, heap_node, pos, pos[v])
-    if left > 0:
-        return np.inf
+    total = 0.0
+    for dz in range(zone_nodes.size):
+        q = demand[oz, dz]
+        if q > 0.0:
+            total += q * dist[zone_nodes[dz]]  # inf when unreachable
     return total
 
 
-@numba.njit(cache=True, parallel=True)
-def _network_sptt(cost, origins, zone_nodes, demand, indptr, adj_link, adj_head, blocked,
-                  n_chunks):
-    """Shortest-path total cost per replication over the whole network (SPTT)."""
+@numba.njit(cache=True, nogil=True)
+def _sptt_items(first, stride, cost, origins, zone_nodes, demand, indptr, adj_link,
+                adj_head, skip, part):
+    """Per-origin SPTT terms ``part[r, i]`` for items ``first, first + stride, ...`` of
+    the ``n_rep * n_origins`` (replication, origin) pairs."""
     n_rep = cost.shape[0]
     n_orig = origins.size
     n_nodes = indptr.size - 1
-    is_dest = np.zeros(n_nodes, dtype=np.int64)
-    for z in range(zone_nodes.size):
-        is_dest[zone_nodes[z]] = z + 1
-    part = np.zeros((n_rep, n_orig))
-    total = n_rep * n_orig
+    dist = np.empty(n_nodes)
+    pos = np.empty(n_nodes, dtype=np.int32)
+    heap_key = np.empty(n_nodes)
+    heap_node = np.empty(n_nodes, dtype=np.int32)
+    cost_adj = np.empty(adj_link.size)
+    last_r = -1
+    for item in range(first, n_rep * n_orig, stride):
+        r = item // n_orig
+        i = item - r * n_orig
+        if r != last_r:
+            for k in range(adj_link.size):
+                cost_adj[k] = cost[r, adj_link[k]]
+            last_r = r
+        oz = origins[i]
+        part[r, i] = _origin_sptt(zone_nodes[oz], oz, zone_nodes, demand, indptr, adj_head,
+                                  cost_adj, skip, dist, pos, heap_key, heap_node)
+
+
+@numba.njit(cache=True, parallel=True)
+def _network_sptt(cost, origins, zone_nodes, demand, indptr, adj_link, adj_head, skip,
+                  n_chunks):
+    """Shortest-path total cost per replication over the whole network (SPTT)."""
+    part = np.empty((cost.shape[0], origins.size))
     for c in numba.prange(n_chunks):
-        dist = np.empty(n_nodes)
-        pos = np.empty(n_nodes, dtype=np.int64)
-        heap_key = np.empty(n_nodes)
-        heap_node = np.empty(n_nodes, dtype=np.int64)
-        for item in range(c, total, n_chunks):
-            r = item // n_orig
-            i = item - r * n_orig
-            oz = origins[i]
-            n_dest = 0
-            for dz in range(zone_nodes.size):
-                if demand[oz, dz] > 0.0:
-                    n_dest += 1
-            part[r, i] = _origin_sptt(zone_nodes[oz], demand[oz], is_dest, n_dest, indptr,
-                                      adj_link, adj_head, cost[r], blocked, dist, pos,
-                                      heap_key, heap_node)
+        _sptt_items(c, n_chunks, cost, origins, zone_nodes, demand, indptr, adj_link,
+                    adj_head, skip, part)
     return part.sum(axis=1)
 
 
 @numba.njit(cache=True, nogil=True)
 def _network_sptt_nogil(cost, origins, zone_nodes, demand, indptr, adj_link, adj_head,
-                        blocked):
+                        skip):
     """:func:`_network_sptt` on one thread without the GIL (runs beside the day loop)."""
-    n_rep = cost.shape[0]
-    n_nodes = indptr.size - 1
-    is_dest = np.zeros(n_nodes, dtype=np.int64)
-    for z in range(zone_nodes.size):
-        is_dest[zone_nodes[z]] = z + 1
-    dist = np.empty(n_nodes)
-    pos = np.empty(n_nodes, dtype=np.int64)
-    heap_key = np.empty(n_nodes)
-    heap_node = np.empty(n_nodes, dtype=np.int64)
-    out = np.zeros(n_rep)
-    for r in range(n_rep):
-        for i in range(origins.size):
-            oz = origins[i]
-            n_dest = 0
-            for dz in range(zone_nodes.size):
-                if demand[oz, dz] > 0.0:
-                    n_dest += 1
-            out[r] += _origin_sptt(zone_nodes[oz], demand[oz], is_dest, n_dest, indptr,
-                                   adj_link, adj_head, cost[r], blocked, dist, pos,
-                                   heap_key, heap_node)
-    return out
+    part = np.empty((cost.shape[0], origins.size))
+    _sptt_items(0, 1, cost, origins, zone_nodes, demand, indptr, adj_link, adj_head, skip,
+                part)
+    return part.sum(axis=1)
+
+
+def _gap_graph(network, sp):
+    """Forward star (32-bit) and the ``skip`` flags of :func:`_origin_sptt`."""
+    tail, head = network.tail, network.head
+    n = network.n_nodes
+    skip = sp.blocked.astype(np.uint8).copy()
+    # the one node each node's links lead to (-1: several), and links entering from
+    # another node than that one
+    first_head = np.full(n, -1, dtype=np.int64)
+    first_head[tail[::-1]] = head[::-1]
+    n_out = np.bincount(tail, minlength=n)
+    other_out = np.bincount(tail, weights=head != first_head[tail], minlength=n)
+    other_in = np.bincount(head, weights=tail != first_head[head], minlength=n)
+    skip[(n_out == 0) | ((other_out == 0) & (other_in == 0))] = 1
+    return (sp.indptr, np.ascontiguousarray(sp.adj_link, dtype=np.int32),
+            np.ascontiguousarray(sp.adj_head, dtype=np.int32), skip)
 
 
 @numba.njit(cache=True, parallel=True)
@@ -755,7 +796,8 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
     prev_driven = np.full((R, n_agents), -1, dtype=np.int64)
 
     f = np.zeros((R, n_routes))
-    f_prev = None
+    od_moved = np.zeros((R, n_od))
+    x_part = np.empty((R, LOAD_BLOCKS, network.n_links))
     x = np.zeros((R, network.n_links))
     t_act = np.zeros_like(x)
     c_nom = np.zeros_like(x)
@@ -808,9 +850,10 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
     numba.set_num_threads(workers)
     pending = None
 
+    g_indptr, g_link, g_head, g_skip = _gap_graph(network, sp)
+
     def gap_args(cost):
-        return (cost, sp.origins, sp.zone_nodes, demand, sp.indptr, sp.adj_link,
-                sp.adj_head, sp.blocked)
+        return (cost, sp.origins, sp.zone_nodes, demand, g_indptr, g_link, g_head, g_skip)
 
     for t in range(days):
         if supply_noise > 0:
@@ -824,14 +867,14 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
                 u[r] = g.random(n_agents)
 
         _route_flows(continuum, share, cur, follower, follow_share, adv, agent_mass,
-                     od_agent_ptr, od_ptr, n_routes, f)
+                     od_agent_ptr, od_ptr, n_routes, f, sum_f, od_moved)
         _link_costs(f, r_lptr, r_lidx, model.kind, model.t0, model.alpha, model.beta,
-                    model.capacity, model.constant, xi, supply_noise > 0, x, t_act, c_nom)
+                    model.capacity, model.constant, xi, supply_noise > 0, x, t_act, c_nom,
+                    x_part)
         np.add(t_act, model.constant[None, :], out=c_act)
-        _route_costs(c_act, c_nom, supply_noise > 0, r_lptr, r_lidx, c_route, c_route_nom)
-        route_cum += c_route
+        _route_costs(c_act, c_nom, supply_noise > 0, r_lptr, r_lidx, c_route, c_route_nom,
+                     route_cum)
         sum_x += x
-        sum_f += f
         if t > 0:
             moves[t] = np.linalg.norm(x - hist[(t - 1) % hist.shape[0]], axis=1) / ue_norm
         hist[t % hist.shape[0]] = x
@@ -840,7 +883,8 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
         rec["total_travel_time"][t] = np.einsum("ij,ij->i", x, t_act)
         rec["total_cost"][t] = np.einsum("ij,ij->i", x, c_act)
         _od_best(c_route_nom, od_ptr, od_min, od_arg)
-        rs_sptt = od_min @ q_od
+        # no BLAS in the day loop: its spinning threads would take the cores from numba's
+        rs_sptt = np.einsum("ij,j->i", od_min, q_od)
         rec["route_set_gap"][t] = _gaps(tstt_nom, rs_sptt)
         if t % gap_every == 0 or t == days - 1:
             if pool is None:
@@ -853,15 +897,14 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
                 pending = (t, tstt_nom, pool.submit(_network_sptt_nogil,
                                                     *gap_args(c_nom.copy())))
         rec["distance_to_ue"][t] = np.linalg.norm(x - ue_flow[None, :], axis=1) / ue_norm
-        if f_prev is not None and continuum:
-            rec["switching_share"][t] = 0.5 * np.abs(f - f_prev).sum(axis=1) / total_q
+        if t > 0 and continuum:
+            rec["switching_share"][t] = 0.5 * od_moved.sum(axis=1) / total_q
         elif t == 0:
             rec["switching_share"][t] = 0.0
         for i, od in enumerate(tracked):
             shares_rec[i][t] = f[:, od_ptr[od]:od_ptr[od + 1]] / q_od[od]
 
         step = rate * g_sched(t + 1)
-        f_prev = f.copy()
         _learn(rule_code, continuum, experience, step, mem_rate, float(theta), c_route, eps,
                estimate_noise > 0, u, share, cur, follower, adv, memory, cum_loss, scale,
                agent_od, od_ptr, route_cum, own_cum, follow_cum, regret_own, regret_follow,
@@ -902,9 +945,7 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
     mean_f = sum_f / days
     average_gap = np.empty(R)
     mean_cost = np.stack([model.cost(mx) for mx in mean_x])
-    sptt_mean = _network_sptt(np.ascontiguousarray(mean_cost), sp.origins, sp.zone_nodes,
-                              demand, sp.indptr, sp.adj_link, sp.adj_head, sp.blocked,
-                              n_chunks)
+    sptt_mean = _network_sptt(*gap_args(np.ascontiguousarray(mean_cost)), n_chunks)
     for r in range(R):
         average_gap[r] = relative_gap(float(mean_x[r] @ mean_cost[r]), float(sptt_mean[r]))
 
