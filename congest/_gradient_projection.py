@@ -19,7 +19,11 @@ Every OD pair keeps the set of routes it uses, with their flows. One iteration:
 4. inner passes repeat step 3 over the fixed route sets (no shortest paths) until the
    excess cost is a small share of the iteration's start, since they are much cheaper
    than step 2 (an inner loop in the spirit of [2]_). They visit only the
-   OD pairs whose excess at their last visit was not negligible.
+   OD pairs whose excess at their last visit was not negligible; every third pass (a
+   "wide" pass) visits all pairs that had any excess at all. A pair whose whole flow was
+   on its cheapest route at its last visit waits for the next iteration's step 3, which
+   visits every pair: on large networks most pairs are such, and visiting them in every
+   wide pass cost more than all the other inner work.
 
 Memory is proportional to the number of links plus the total length of the used routes
 (a pool of link indices, compacted when half of it belongs to dropped routes), plus one
@@ -27,8 +31,9 @@ predecessor array per origin. Every loop over links, OD pairs or routes is compi
 numba; the shortest-path trees run in parallel over origins when the network is large
 enough for threads to pay (small ones run on one thread).
 
-A warm start takes the route sets of an earlier result of the same network and scales
-their flows to the new demand of each OD pair, then re-balances them at the new costs
+A warm start takes the route sets of an earlier result of the same network (its used
+routes and the nearly cheapest ones kept without flow) and scales the flows to the new
+demand of each OD pair, then re-balances them at the new costs
 with inner passes before the first shortest-path pass; after a toll, capacity or small
 demand change most routes stay, so fewer iterations are needed.
 
@@ -86,6 +91,11 @@ class RouteState:
     path_links : ndarray of int32, shape (path_ptr[-1],)
     path_flow : ndarray of shape (n_routes,)
     n_links : int
+    idle_od_ptr, idle_path_ptr, idle_path_links : ndarray of int, optional
+        The same CSR layout for the routes kept without flow (nearly cheapest at the
+        solution, see option ``keep`` of :func:`solve_gp`). They are not route choices
+        and :mod:`congest.routes` ignores them; a warm start loads them with the used
+        routes, so that flow can move onto them at once when costs change.
     """
 
     origin: np.ndarray
@@ -96,6 +106,9 @@ class RouteState:
     path_links: np.ndarray
     path_flow: np.ndarray
     n_links: int
+    idle_od_ptr: np.ndarray | None = None
+    idle_path_ptr: np.ndarray | None = None
+    idle_path_links: np.ndarray | None = None
 
 
 # --------------------------------------------------------------------------- kernels
@@ -453,9 +466,14 @@ def _compact(od_first, p_start, p_len, p_flow, p_hash, p_next, pool, n_start, n_
 
 
 @numba.njit(cache=True)
-def _import(old_od_ptr, old_path_ptr, old_links, old_flow, old_index, scale, od_first,
-            p_start, p_len, p_flow, p_hash, p_next, pool, counters):
-    """Seed the route pool from an earlier state; ``old_index[od]`` = old OD or -1."""
+def _import(old_od_ptr, old_path_ptr, old_links, old_flow, idle_od_ptr, idle_path_ptr,
+            idle_links, old_index, scale, od_first, p_start, p_len, p_flow, p_hash, p_next,
+            pool, counters):
+    """Seed the route pool from an earlier state; ``old_index[od]`` = old OD or -1.
+
+    Each OD pair gets its used routes (flows times ``scale``) and then its idle routes
+    (no flow).
+    """
     q = 0
     s = 0
     for od in range(od_first.size):
@@ -464,16 +482,26 @@ def _import(old_od_ptr, old_path_ptr, old_links, old_flow, old_index, scale, od_
         if k < 0:
             continue
         last = -1
-        for r in range(old_od_ptr[k], old_od_ptr[k + 1]):
-            f = old_flow[r] * scale[od]
-            if f <= 0.0:
-                continue
-            a, b = old_path_ptr[r], old_path_ptr[r + 1]
+        n_used = old_od_ptr[k + 1] - old_od_ptr[k]
+        n_idle = idle_od_ptr[k + 1] - idle_od_ptr[k]
+        for j in range(n_used + n_idle):
+            if j < n_used:
+                r = old_od_ptr[k] + j
+                f = old_flow[r] * scale[od]
+                if f <= 0.0:
+                    continue
+                a, b = old_path_ptr[r], old_path_ptr[r + 1]
+                links = old_links
+            else:
+                r = idle_od_ptr[k] + j - n_used
+                f = 0.0
+                a, b = idle_path_ptr[r], idle_path_ptr[r + 1]
+                links = idle_links
             h = 1469598103934665603
             for i in range(b - 1, a - 1, -1):
-                h = (h ^ old_links[i]) * 1099511628211
+                h = (h ^ links[i]) * 1099511628211
             for i in range(a, b):
-                pool[s + i - a] = old_links[i]
+                pool[s + i - a] = links[i]
             p_start[q] = s
             p_len[q] = b - a
             p_flow[q] = f
@@ -491,13 +519,15 @@ def _import(old_od_ptr, old_path_ptr, old_links, old_flow, old_index, scale, od_
 
 
 @numba.njit(cache=True)
-def _export_counts(od_first, p_len, p_flow, p_next, counts, lengths):
+def _export_counts(od_first, p_len, p_flow, p_next, counts, lengths, used):
+    """Count the used routes (``used``) or the idle ones of every OD pair."""
     n = 0
     for od in range(od_first.size):
         p = od_first[od]
         c = 0
         while p >= 0:
-            if p_flow[p] > 0.0:  # a cheapest route may have just joined with no flow
+            # a cheapest route may have just joined with no flow: idle
+            if (p_flow[p] > 0.0) == used:
                 lengths[n] = p_len[p]
                 n += 1
                 c += 1
@@ -508,12 +538,12 @@ def _export_counts(od_first, p_len, p_flow, p_next, counts, lengths):
 
 @numba.njit(cache=True)
 def _export_fill(od_first, p_start, p_len, p_flow, p_next, pool, path_ptr, path_links,
-                 path_flow):
+                 path_flow, used):
     r = 0
     for od in range(od_first.size):
         p = od_first[od]
         while p >= 0:
-            if p_flow[p] > 0.0:
+            if (p_flow[p] > 0.0) == used:
                 s = path_ptr[r]
                 for i in range(p_len[p]):
                     path_links[s + i] = pool[p_start[p] + i]
@@ -578,11 +608,12 @@ class _Pool:
         return (self.od_first, self.start, self.length, self.flow, self.hash, self.next,
                 self.links, self.counters)
 
-    def export(self, origin, destination, demand, n_links) -> RouteState:
+    def _export_csr(self, used):
         n_od = self.od_first.size
         counts = np.zeros(n_od, dtype=np.int64)
         lengths = np.zeros(int(self.counters[_N_PATHS]), dtype=np.int64)
-        n = _export_counts(self.od_first, self.length, self.flow, self.next, counts, lengths)
+        n = _export_counts(self.od_first, self.length, self.flow, self.next, counts, lengths,
+                           used)
         od_ptr = np.zeros(n_od + 1, dtype=np.int64)
         np.cumsum(counts, out=od_ptr[1:])
         path_ptr = np.zeros(n + 1, dtype=np.int64)
@@ -590,11 +621,18 @@ class _Pool:
         path_links = np.empty(int(path_ptr[-1]), dtype=np.int32)
         path_flow = np.empty(n)
         _export_fill(self.od_first, self.start, self.length, self.flow, self.next,
-                     self.links, path_ptr, path_links, path_flow)
-        for arr in (origin, destination, demand, od_ptr, path_ptr, path_links, path_flow):
+                     self.links, path_ptr, path_links, path_flow, used)
+        return od_ptr, path_ptr, path_links, path_flow
+
+    def export(self, origin, destination, demand, n_links) -> RouteState:
+        od_ptr, path_ptr, path_links, path_flow = self._export_csr(True)
+        idle_od_ptr, idle_path_ptr, idle_path_links, _ = self._export_csr(False)
+        for arr in (origin, destination, demand, od_ptr, path_ptr, path_links, path_flow,
+                    idle_od_ptr, idle_path_ptr, idle_path_links):
             arr.setflags(write=False)
         return RouteState(origin, destination, demand, od_ptr, path_ptr, path_links,
-                          path_flow, int(n_links))
+                          path_flow, int(n_links), idle_od_ptr, idle_path_ptr,
+                          idle_path_links)
 
 
 def _seed_from(state, network, od_o, od_d, od_q, pool):
@@ -610,11 +648,16 @@ def _seed_from(state, network, od_o, od_d, od_q, pool):
     old_q = np.where(old >= 0, state.demand[np.maximum(old, 0)], 0.0)
     old = np.where(old_q > 0, old, -1)
     scale = np.where(old >= 0, od_q / np.where(old_q > 0, old_q, 1.0), 0.0)
-    n_paths = int(state.path_flow.size)
-    n_pool = int(state.path_links.size)
+    if state.idle_od_ptr is None:
+        idle = (np.zeros(state.origin.size + 1, dtype=np.int64), np.zeros(1, dtype=np.int64),
+                np.zeros(0, dtype=np.int32))
+    else:
+        idle = (state.idle_od_ptr, state.idle_path_ptr, state.idle_path_links)
+    n_paths = int(state.path_flow.size + idle[1].size - 1)
+    n_pool = int(state.path_links.size + idle[2].size)
     pool.reserve(n_paths, n_pool)
-    _import(state.od_ptr, state.path_ptr, state.path_links, state.path_flow, old, scale,
-            *pool.args()[:-1], pool.counters)
+    _import(state.od_ptr, state.path_ptr, state.path_links, state.path_flow, *idle, old,
+            scale, *pool.args()[:-1], pool.counters)
 
 
 def _check_same_network(old, net):
@@ -727,7 +770,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
                                  pool.counters, mark, mark2, keep, od_excess,
-                                 -1.0 if full else threshold)
+                                 0.0 if full else threshold)
             if first < 0:
                 first = excess
                 threshold = 0.1 * warm_ratio * first / n_od
@@ -798,19 +841,21 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
                                  od_excess)
         # pairs whose excess is a negligible share of the total wait for the next pass
         threshold = 0.1 * ratio * excess_start / n_od
+        # in exhaustive mode (slow progress) wide passes visit every pair with routes
+        wide = -1.0 if ratio == 0.0 else 0.0
         full = False
         for n_pass in range(1, inner_max + 1):
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
                                  pool.counters, mark, mark2, keep, od_excess,
-                                 -1.0 if full else threshold)
+                                 wide if full else threshold)
             if excess <= ratio * excess_start:
                 if full:
                     break
-                full = True  # the skipped pairs may have drifted: confirm on all of them
+                full = True  # the skipped pairs may have drifted: confirm on them
             else:
                 # pairs with little excess of their own still carry flow between the
-                # links that others contend for: visit all of them now and then
+                # links that others contend for: visit all with any excess now and then
                 full = n_pass % _FULL_EVERY == 0
             if time_limit is not None and time.perf_counter() - start_time > time_limit:
                 break
