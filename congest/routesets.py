@@ -602,7 +602,8 @@ def build_route_set(network, *, k=3, max_routes=None, equilibrium=None, tol=1e-8
     lists = [dict() for _ in range(o.size)]  # per OD: tuple(links) -> [flags, ue flow]
 
     def add(i, links, flag, flow=0.0):
-        key = tuple(int(x) for x in links)
+        key = (tuple(links.tolist()) if isinstance(links, np.ndarray)
+               else tuple(int(x) for x in links))
         entry = lists[i].get(key)
         if entry is None:
             lists[i][key] = [flag, flow]
