@@ -3,6 +3,9 @@
 from __future__ import annotations
 
 import json
+import os
+import tempfile
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -30,10 +33,14 @@ def two_routes(tmp_path):
 
 
 def run(args, cwd):
-    runner = CliRunner()
-    with runner.isolated_filesystem(temp_dir=cwd):
-        result = runner.invoke(main, args, catch_exceptions=False)
-    return result
+    # run in a fresh folder under cwd so default output names land there
+    work = Path(tempfile.mkdtemp(dir=cwd))
+    old = os.getcwd()
+    os.chdir(work)
+    try:
+        return CliRunner().invoke(main, args, catch_exceptions=False)
+    finally:
+        os.chdir(old)
 
 
 def test_compare_writes_table_and_links(two_routes, tmp_path):
