@@ -162,6 +162,8 @@ def _fill(which, kind, t0, a, b, c, v, out):
             out[i] = time_scalar(kind[i], t0[i], a[i], b[i], c[i], v[i])
         elif which == 1:
             out[i] = derivative_scalar(kind[i], t0[i], a[i], b[i], c[i], v[i])
+        elif which == 3:
+            out[i] = second_derivative_scalar(kind[i], t0[i], a[i], b[i], c[i], v[i])
         else:
             out[i] = integral_scalar(kind[i], t0[i], a[i], b[i], c[i], v[i])
     return out
@@ -233,6 +235,10 @@ class CostModel:
     def derivative(self, v):
         """``t'(v + preload)``, minutes per vehicle."""
         return self._apply(1, v)
+
+    def second_derivative(self, v):
+        """``t''(v + preload)``."""
+        return self._apply(3, v)
 
     def integral(self, v):
         """``integral_0^v t(u + preload) du`` (without the constant term)."""

@@ -79,12 +79,9 @@ class Problem:
         """Diagonal of the Hessian of the objective at ``x``."""
         if self.objective == "ue":
             return self.model.derivative(x)
-        # d/dv [t + w t'] = 2 t' + w t'' at w = v + preload; t'' by a central difference
+        # d/dv [t + w t'] = 2 t' + w t'' at w = v + preload
         w = x + self.model.preload
-        h = 1e-6 * np.maximum(w, 1.0)
-        lo = np.maximum(x - h, -self.model.preload)
-        hi = x + h
-        second = (self.model.derivative(hi) - self.model.derivative(lo)) / (hi - lo)
+        second = self.model.second_derivative(x)
         return 2.0 * self.model.derivative(x) + w * second
 
     def objective_value(self, x) -> float:
