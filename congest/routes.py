@@ -36,7 +36,7 @@ import numpy as np
 
 from .exceptions import SolverError
 
-__all__ = ["Route", "RouteFlows", "SelectLink", "route_flows", "select_link"]
+__all__ = ["Route", "RouteFlows", "SelectLink", "route_flows", "select_link", "select_link_volumes"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -280,10 +280,34 @@ def select_link(result, links, *, require="any") -> SelectLink:
     IndexError
         A link index out of range.
     """
-    if require not in ("any", "all"):
-        raise SolverError(f"Unknown require {require!r}; expected 'any' or 'all'")
+    state = _route_state(result)
+    sel, uses = _routes_using(state, result.network.n_links, links, require)
+    od = np.repeat(np.arange(state.origin.size), np.diff(state.od_ptr))
+    flow = np.bincount(od, weights=np.where(uses, state.path_flow, 0.0),
+                       minlength=state.origin.size)
+    keep = flow > 0
+    return SelectLink(result.network, sel, require, state.origin[keep],
+                      state.destination[keep], flow[keep], state.demand[keep])
+
+
+def select_link_volumes(result, links, *, require="any") -> np.ndarray:
+    """Link volumes of the trips whose routes use the selected links.
+
+    Parameters are those of :func:`select_link`. Returns an ndarray of shape
+    ``(n_links,)``; on a single selected link it equals that link's volume.
+    """
     state = _route_state(result)
     n_links = result.network.n_links
+    _, uses = _routes_using(state, n_links, links, require)
+    lengths = np.diff(state.path_ptr)
+    per_entry = np.repeat(np.where(uses, state.path_flow, 0.0), lengths)
+    return np.bincount(state.path_links, weights=per_entry, minlength=n_links)
+
+
+def _routes_using(state, n_links, links, require):
+    # the selected link indices, and which routes use any/all of them
+    if require not in ("any", "all"):
+        raise SolverError(f"Unknown require {require!r}; expected 'any' or 'all'")
     sel = np.unique(np.atleast_1d(np.asarray(links, dtype=np.int64)))
     if sel.size == 0:
         raise SolverError("select_link needs at least one link")
@@ -292,20 +316,13 @@ def select_link(result, links, *, require="any") -> SelectLink:
         raise IndexError(f"link index {bad} out of range 0..{n_links - 1}")
     chosen = np.zeros(n_links, dtype=bool)
     chosen[sel] = True
-    ptr = state.path_ptr
-    lengths = np.diff(ptr)
+    lengths = np.diff(state.path_ptr)
     hits_per_route = np.zeros(lengths.size)
     if state.path_links.size:
         route_of_entry = np.repeat(np.arange(lengths.size), lengths)
         hits_per_route = np.bincount(route_of_entry, weights=chosen[state.path_links],
                                      minlength=lengths.size)
-    uses = hits_per_route >= (1 if require == "any" else sel.size)
-    od = np.repeat(np.arange(state.origin.size), np.diff(state.od_ptr))
-    flow = np.bincount(od, weights=np.where(uses, state.path_flow, 0.0),
-                       minlength=state.origin.size)
-    keep = flow > 0
-    return SelectLink(result.network, sel, require, state.origin[keep],
-                      state.destination[keep], flow[keep], state.demand[keep])
+    return sel, hits_per_route >= (1 if require == "any" else sel.size)
 
 
 def _route_state(result):

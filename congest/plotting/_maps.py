@@ -626,21 +626,9 @@ def select_link_flow(result, links, *, require="any"):
     ndarray of shape (n_links,)
         On each selected link it equals the link's volume (``require="any"``, one link).
     """
-    from ..routes import route_flows
+    from ..routes import select_link_volumes
 
-    if require not in ("any", "all"):
-        raise ValueError(f"Unknown require {require!r}; expected 'any' or 'all'")
-    rf = route_flows(result)
-    n = result.network.n_links
-    sel = np.unique(np.atleast_1d(np.asarray(links, dtype=np.int64)))
-    chosen = np.zeros(n, dtype=bool)
-    chosen[sel] = True
-    lengths = np.diff(rf.route_ptr)
-    route_of_entry = np.repeat(np.arange(lengths.size), lengths)
-    hits = np.bincount(route_of_entry, weights=chosen[rf.route_links], minlength=lengths.size)
-    uses = hits >= (1 if require == "any" else sel.size)
-    per_entry = np.repeat(np.where(uses, rf.flow, 0.0), lengths)
-    return np.bincount(rf.route_links, weights=per_entry, minlength=n)
+    return select_link_volumes(result, links, require=require)
 
 
 def select_link_map(network, select_flow, selected, *, label=None, figsize=(10.0, 8.0)):
