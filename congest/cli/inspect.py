@@ -7,8 +7,7 @@ import sys
 
 import click
 
-from ._common import friendly_errors
-from .solve import SHOWN_PAIRS, load_network, network_options
+from ._common import SHOWN_PAIRS, friendly_errors, load_network, network_options
 
 __all__ = ["command", "describe"]
 

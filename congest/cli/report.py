@@ -6,8 +6,7 @@ from pathlib import Path
 
 import click
 
-from ._common import friendly_errors
-from .solve import _slug, check_paths, load_network, network_options
+from ._common import _slug, check_paths, friendly_errors, load_network, network_options
 
 __all__ = ["command"]
 

@@ -1,115 +1,18 @@
-"""``congest solve NETWORK``: user equilibrium or system optimum, summary and link table.
-
-Also home of the network-loading options shared by commands that read a network
-(:func:`network_options`, :func:`load_network`).
-"""
+"""``congest solve NETWORK``: user equilibrium or system optimum, summary and link table."""
 
 from __future__ import annotations
 
 import json
 import math
-import re
 import sys
 from pathlib import Path
 
 import click
 
 from ..equilibrium import METHODS
-from ._common import friendly_errors
+from ._common import _slug, check_paths, friendly_errors, load_network, network_options
 
-__all__ = ["command", "network_options", "load_network", "check_paths"]
-
-#: Pairs listed in a "no path" message before it gives a count.
-SHOWN_PAIRS = 8
-
-
-def network_options(func):
-    """Click options that say how to read a network (used by several commands)."""
-    options = [
-        click.option("--demand", "demand", type=click.Path(dir_okay=False),
-                     help="OD table (origin,destination,volume) when NETWORK is a "
-                          "link-table CSV or a folder without demand.csv."),
-        click.option("--zones", "zones", metavar="IDS",
-                     help="Plain tables: node ids that are zones, e.g. '1-38' or "
-                          "'1-10,12'. Default: the nodes in the OD table."),
-        click.option("--pass-through-zones/--no-pass-through-zones", "through",
-                     default=None,
-                     help="Whether paths may pass through zone centroids. Default: the "
-                          "network's setting (plain tables: no)."),
-        click.option("--toll-weight", "toll_weight", type=float, metavar="MIN",
-                     help="Plain tables: minutes of generalized cost per unit of the toll "
-                          "column (otherwise tolls are money, converted with the value of "
-                          "time)."),
-        click.option("--length-weight", "length_weight", type=float, metavar="MIN",
-                     help="Plain tables: minutes of generalized cost per unit of length."),
-        click.option("--length-unit", "length_unit", metavar="UNIT",
-                     help="Plain tables: unit of the length column, for reports "
-                          "(e.g. km, mi, ft)."),
-        click.option("--period-hours", "period_hours", type=float, metavar="H",
-                     help="Length of the analysis period the demand is for, hours."),
-        click.option("--value-of-time", "value_of_time", type=float, metavar="MONEY",
-                     help="Money per hour, used to turn tolls into minutes."),
-        click.option("--demand-scale", "demand_scale", type=float, default=1.0,
-                     show_default=True, metavar="F", help="Multiply every OD entry by F."),
-    ]
-    for option in reversed(options):
-        func = option(func)
-    return func
-
-
-def load_network(network, *, demand=None, zones=None, through=None, toll_weight=None,
-                 length_weight=None, length_unit=None, period_hours=None, value_of_time=None,
-                 demand_scale=1.0, **_ignored):
-    """Read NETWORK with the options of :func:`network_options`.
-
-    Returns
-    -------
-    net : Network
-    layout : congest.io.Layout
-    """
-    from ..exceptions import InputError
-    from ..io import detect_layout, read_network
-
-    layout = detect_layout(network, demand=demand)
-    if layout.kind == "gmns" and demand is not None:
-        raise InputError("--demand is for plain tables; a GMNS folder names its trip "
-                         "table in scenario.json", path=layout.folder)
-    net = read_network(network, demand=demand, zones=zones, through_centroids=through,
-                       toll_weight=toll_weight, length_weight=length_weight,
-                       length_unit=length_unit, period_hours=period_hours,
-                       value_of_time=value_of_time)
-    if demand_scale != 1.0:
-        if not (demand_scale >= 0 and math.isfinite(demand_scale)):
-            raise InputError("--demand-scale must be a non-negative number",
-                             value=demand_scale)
-        net = net.scale_demand(demand_scale)
-    return net, layout
-
-
-def check_paths(net, layout):
-    """Raise a clear InputError when OD pairs with trips have no path."""
-    import numpy as np
-
-    from ..exceptions import InputError
-    from ..paths import ShortestPaths
-
-    _, od_cost = ShortestPaths(net).all_or_nothing(net.free_flow_time + 1.0)
-    pairs = np.argwhere((net.demand > 0) & ~np.isfinite(od_cost))
-    if len(pairs) == 0:
-        return
-    shown = ", ".join(f"{net.zone_ids[o]}->{net.zone_ids[d]}" for o, d in pairs[:SHOWN_PAIRS])
-    more = f" and {len(pairs) - SHOWN_PAIRS} more" if len(pairs) > SHOWN_PAIRS else ""
-    hint = ("check the links at these zones" if net.through_centroids else
-            "check the links at these zones, or allow paths through zone centroids "
-            "(--pass-through-zones) if the network expects it")
-    raise InputError(f"{len(pairs)} OD pair(s) with trips have no path through the network "
-                     f"(origin zone -> destination zone): {shown}{more}; {hint}",
-                     path=layout.demand)
-
-
-def _slug(text):
-    return re.sub(r"[^a-z0-9]+", "-", str(text).lower()).strip("-") or "network"
-
+__all__ = ["command"]
 
 def _number(value, digits=1):
     return f"{value:,.{digits}f}"

@@ -7,9 +7,8 @@ from pathlib import Path
 
 import click
 
-from ._common import friendly_errors
+from ._common import check_paths, friendly_errors, load_network, network_options
 from .compare import default_gap
-from .solve import check_paths, load_network, network_options
 
 __all__ = ["command", "parse_groups", "parse_classes"]
 
