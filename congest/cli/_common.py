@@ -119,3 +119,20 @@ def check_paths(net, layout):
 
 def _slug(text):
     return re.sub(r"[^a-z0-9]+", "-", str(text).lower()).strip("-") or "network"
+
+
+def solver_options(func):
+    """``--gap``, ``--method`` and ``--max-iter`` of commands that run many solves."""
+    options = [
+        click.option("--gap", type=float, default=None,
+                     help="Target relative gap of every equilibrium solve. Default: 1e-10, "
+                          "or 1e-5 with a link-based method (msa, fw, cfw, bfw), which stall "
+                          "before tighter gaps."),
+        click.option("--method", default="auto", show_default=True,
+                     help="Equilibrium method: auto, or one of congest.METHODS."),
+        click.option("--max-iter", type=click.IntRange(min=1), default=None,
+                     help="Iteration cap of each solve."),
+    ]
+    for option in reversed(options):
+        func = option(func)
+    return func

@@ -8,7 +8,13 @@ from pathlib import Path
 
 import click
 
-from ._common import check_paths, friendly_errors, load_network, network_options
+from ._common import (
+    check_paths,
+    friendly_errors,
+    load_network,
+    network_options,
+    solver_options,
+)
 
 __all__ = ["command", "write_comparison", "comparison_json", "default_gap"]
 
@@ -137,14 +143,7 @@ def render_table(cmp):
 @click.option("--out-dir", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Folder for scenarios.csv, scenarios.json and links/<scenario>.csv. "
                    "Default: <network>-compare in the current folder.")
-@click.option("--gap", type=float, default=None,
-              help="Target relative gap of every equilibrium solve. Default: 1e-10, or "
-                   "1e-5 with a link-based method (msa, fw, cfw, bfw), which stall "
-                   "before tighter gaps.")
-@click.option("--method", default="auto", show_default=True,
-              help="Equilibrium method: auto, or one of congest.METHODS.")
-@click.option("--max-iter", type=click.IntRange(min=1), default=None,
-              help="Iteration cap of each solve.")
+@solver_options
 @click.option("--days", type=click.IntRange(min=2), default=60, show_default=True,
               help="Days of reactive advice simulated.")
 @click.option("--burn-in", type=click.IntRange(min=0), default=10, show_default=True,

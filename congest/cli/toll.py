@@ -7,7 +7,13 @@ from pathlib import Path
 
 import click
 
-from ._common import check_paths, friendly_errors, load_network, network_options
+from ._common import (
+    check_paths,
+    friendly_errors,
+    load_network,
+    network_options,
+    solver_options,
+)
 from .compare import default_gap
 
 __all__ = ["command", "parse_groups", "parse_classes"]
@@ -110,14 +116,7 @@ def parse_classes(values):
                    "and who pays under the tolls (<out>-classes.csv).")
 @click.option("--out", "out", type=click.Path(dir_okay=False), default=None,
               help="Toll table CSV. Default: <network>-tolls.csv in the current folder.")
-@click.option("--gap", type=float, default=None,
-              help="Target relative gap of every equilibrium solve. Default: 1e-10, or "
-                   "1e-5 with a link-based method (msa, fw, cfw, bfw), which stall "
-                   "before tighter gaps.")
-@click.option("--method", default="auto", show_default=True,
-              help="Equilibrium method: auto, or one of congest.METHODS.")
-@click.option("--max-iter", type=click.IntRange(min=1), default=None,
-              help="Iteration cap of each solve.")
+@solver_options
 @network_options
 @friendly_errors
 def command(network, on_links, on_attribute, max_charge, search, max_evals, class_specs,
