@@ -24,6 +24,10 @@ Every OD pair keeps the set of routes it uses, with their flows. One iteration:
    on its cheapest route at its last visit waits for the next iteration's step 3, which
    visits every pair: on large networks most pairs are such, and visiting them in every
    wide pass cost more than all the other inner work.
+   Where many pairs share links, the passes undo part of each other's moves and the
+   route flows approach their limit geometrically; once two cycles of passes show the
+   rate, the flows are extrapolated to the limit (option ``accelerate``, after
+   Aitken [4]_), and the jump is kept only if the next pass confirms it.
 
 Memory is proportional to the number of links plus the total length of the used routes
 (a pool of link indices, compacted when half of it belongs to dropped routes), plus one
@@ -435,6 +439,33 @@ def _inner_pass(x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_flow,
 
 
 @numba.njit(cache=True)
+def _extrapolate(od_first, p_next, p_flow, step, od_demand, fac, od_excess):
+    """Move every route flow ``fac`` times its last change further; keep OD totals.
+
+    Flows that would turn negative become zero and each OD pair's flows are rescaled to
+    its demand. The pairs that moved are flagged (``od_excess = inf``) for the next pass.
+    """
+    for od in range(od_first.size):
+        p = od_first[od]
+        moved = False
+        total = 0.0
+        while p >= 0:
+            if step[p] != 0.0:
+                moved = True
+                f = p_flow[p] + fac * step[p]
+                p_flow[p] = f if f > 0.0 else 0.0
+            total += p_flow[p]
+            p = p_next[p]
+        if moved and total > 0.0:
+            s = od_demand[od] / total
+            p = od_first[od]
+            while p >= 0:
+                p_flow[p] *= s
+                p = p_next[p]
+            od_excess[od] = np.inf
+
+
+@numba.njit(cache=True)
 def _compact(od_first, p_start, p_len, p_flow, p_hash, p_next, pool, n_start, n_len,
              n_flow, n_hash, n_next, n_pool, n_od_first, counters):
     """Copy the live routes into fresh arrays (``n_*``), in OD order."""
@@ -635,6 +666,70 @@ class _Pool:
                           idle_path_links)
 
 
+class _Accelerator:
+    """Extrapolation of the route flows over cycles of inner passes.
+
+    The inner passes are Gauss-Seidel sweeps over OD pairs; where many pairs share
+    links, each sweep undoes part of the others' moves and the route flows approach
+    their limit geometrically, the change of each cycle of passes about ``r`` times the
+    one before. At the end of every full pass, once two cycles agree on ``r < 1``, the
+    flows jump to the limit of that geometric series, ``f + step * r / (1 - r)``, as in
+    Aitken's delta-squared process applied to the whole vector [4]_. The jump is
+    checked by the next full pass: if that finds more excess cost than the pass before
+    the jump by more than ``allow`` times, the flows are put back and jumps are halved
+    from then on. (Right after a jump the pairs it moved show some excess of their own
+    that the next passes remove quickly; a strict test would undo most good jumps.)
+    """
+
+    def __init__(self, pool, od_q, od_excess, max_factor=5.0, allow=3.0):
+        self.allow = allow
+        self.pool = pool
+        self.od_q = od_q
+        self.od_excess = od_excess
+        self.max_factor = max_factor
+        self.reset()
+
+    def reset(self):
+        """Forget the cycle history (after routes were added, moved or compacted)."""
+        self.n = int(self.pool.counters[_N_PATHS])
+        self.snapshot = self.pool.flow[:self.n].copy()
+        self.last_step = None
+        self.saved = None
+
+    def after_full_pass(self, excess):
+        """Call after each full pass; returns True when it changed the route flows."""
+        pool = self.pool
+        if self.saved is not None:
+            saved, before = self.saved, self.before
+            self.saved = None
+            if excess > self.allow * before:
+                pool.flow[:self.n] = saved
+                self.od_excess[:] = np.inf
+                self.max_factor *= 0.5
+                self.snapshot = saved.copy()
+                self.last_step = None
+                return True
+        step = pool.flow[:self.n] - self.snapshot
+        last, self.last_step = self.last_step, step
+        self.snapshot = pool.flow[:self.n].copy()
+        if last is None or self.max_factor < 0.1:
+            return False
+        # sums of squares, not dot products: a BLAS call may wake its spinning threads
+        norm_last = float(np.sum(last * last))
+        r = float(np.sqrt(np.sum(step * step) / norm_last)) if norm_last > 0.0 else 1.0
+        if not r < 0.95:
+            return False
+        self.saved = self.snapshot.copy()
+        self.before = excess
+        grow = np.zeros(pool.flow.size)
+        grow[:self.n] = step
+        _extrapolate(pool.od_first, pool.next, pool.flow, grow, self.od_q,
+                     min(r / (1.0 - r), self.max_factor), self.od_excess)
+        self.snapshot = pool.flow[:self.n].copy()
+        self.last_step = None
+        return True
+
+
 def _seed_from(state, network, od_o, od_d, od_q, pool):
     """Load the route sets of ``state`` scaled to the new demand into ``pool``."""
     if not isinstance(state, RouteState):
@@ -672,7 +767,7 @@ def _check_same_network(old, net):
 
 # ------------------------------------------------------------------------------ solver
 def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
-             inner_max=40, inner_ratio=0.01, warm_ratio=1e-3, keep=0.01):
+             inner_max=40, inner_ratio=0.01, warm_ratio=1e-3, keep=0.01, accelerate=True):
     """Path-based gradient projection (Jayakrishnan et al. 1994) for UE and SO.
 
     Parameters
@@ -694,6 +789,10 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         A route whose flow reaches zero stays in its OD pair's set (ready to take flow
         back without a new shortest-path search) while its cost is within ``keep``
         (relative) of the pair's cheapest route; it is checked once per iteration.
+    accelerate : bool, default True
+        Extrapolate the route flows over cycles of inner passes (see :class:`_Accelerator`).
+        It speeds up SO on congested networks (Barcelona, Winnipeg, Chicago Sketch: 30 to
+        40 % less time) and leaves UE about as fast; ``False`` gives the plain passes.
 
     Returns
     -------
@@ -766,20 +865,28 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         od_excess[:] = np.inf
         first = threshold = -1.0
         full = True
-        for _ in range(inner_max):
+        accel = _Accelerator(pool, od_q, od_excess) if accelerate else None
+        for n_pass in range(1, inner_max + 1):
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
                                  pool.counters, mark, mark2, keep, od_excess,
                                  0.0 if full else threshold)
+            was_full = full
             if first < 0:
                 first = excess
                 threshold = 0.1 * warm_ratio * first / n_od
+                full = False
             elif excess <= warm_ratio * first:
                 if full:
                     break
                 full = True
-                continue
-            full = False
+            else:
+                full = n_pass % _FULL_EVERY == 0
+            if was_full and accel is not None and accel.after_full_pass(excess):
+                _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow,
+                           pool.next, pool.links, x)
+                _refresh_costs(x, kind, par, so, cost, deriv)
+                full = True
     best_gap = (np.inf, 0)
     ratio = inner_ratio
     prev_gap = np.inf
@@ -844,11 +951,13 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         # in exhaustive mode (slow progress) wide passes visit every pair with routes
         wide = -1.0 if ratio == 0.0 else 0.0
         full = False
+        accel = _Accelerator(pool, od_q, od_excess) if accelerate else None
         for n_pass in range(1, inner_max + 1):
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
                                  pool.counters, mark, mark2, keep, od_excess,
                                  wide if full else threshold)
+            was_full = full
             if excess <= ratio * excess_start:
                 if full:
                     break
@@ -857,6 +966,11 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
                 # pairs with little excess of their own still carry flow between the
                 # links that others contend for: visit all with any excess now and then
                 full = n_pass % _FULL_EVERY == 0
+            if was_full and accel is not None and accel.after_full_pass(excess):
+                _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow,
+                           pool.next, pool.links, x)
+                _refresh_costs(x, kind, par, so, cost, deriv)
+                full = True  # the next full pass checks the jump
             if time_limit is not None and time.perf_counter() - start_time > time_limit:
                 break
         if pool.counters[_DEAD_LINKS] > max(pool.counters[_POOL_USED] // 2, 1024):
