@@ -65,7 +65,7 @@ import numpy as np
 from .costs import time_derivatives_scalar
 from .equilibrium import relative_gap
 from .exceptions import SolverError
-from .paths import dijkstra
+from .paths import adjacency_costs, dijkstra
 
 __all__ = ["solve_gp", "RouteState"]
 
@@ -139,16 +139,18 @@ def _trees_impl(origin_nodes, zone_nodes, indptr, adj_link, adj_head, cost, bloc
            n_chunks):
     """Shortest-path trees from every origin: predecessor links and zone distances."""
     n_nodes = indptr.size - 1
-    n_links = adj_link.size
+    cost_adj = np.empty(adj_link.size)
+    adjacency_costs(cost, adj_link, cost_adj)
     for ch in numba.prange(n_chunks):
         dist = np.empty(n_nodes)
         p = np.empty(n_nodes, dtype=np.int64)
         order = np.empty(n_nodes, dtype=np.int64)
-        heap_key = np.empty(n_links + 1)
-        heap_node = np.empty(n_links + 1, dtype=np.int64)
+        pos = np.empty(n_nodes, dtype=np.int64)
+        heap_key = np.empty(n_nodes)
+        heap_node = np.empty(n_nodes, dtype=np.int64)
         for j in range(ch, origin_nodes.size, n_chunks):
-            dijkstra(origin_nodes[j], indptr, adj_link, adj_head, cost, blocked, dist, p,
-                     order, heap_key, heap_node)
+            dijkstra(origin_nodes[j], indptr, adj_link, adj_head, cost_adj, blocked, dist, p,
+                     order, pos, heap_key, heap_node)
             for i in range(n_nodes):
                 pred[j, i] = p[i]
             for z in range(zone_nodes.size):

@@ -69,6 +69,16 @@ class Problem:
         if model is None:
             model = CostModel.from_network(network, preload=preload)
         self.model = model
+        # costs only grow with volume, so the cost at zero volume is each link's least;
+        # shortest-path trees (Dijkstra) are wrong on negative link costs
+        least = model.time(np.zeros(network.n_links)) + model.constant
+        if network.n_links and least.min() < 0.0:
+            i = int(np.argmin(least))
+            raise NetworkError(
+                f"link {network.link_ids[i]} has a negative generalized cost at zero volume "
+                f"({least[i]:.6g} min: travel time plus fixed cost plus toll in minutes); "
+                "link costs must be non-negative, so a rebate may not exceed the link's "
+                "free-flow time")
         self.paths = ShortestPaths(network) if paths is None else paths
 
     def gradient(self, x):

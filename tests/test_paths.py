@@ -76,6 +76,55 @@ def test_tree_distances_match_scipy(seed):
         assert pred[z] == -1 and np.all(pred[~np.isfinite(dist)] == -1)
 
 
+@pytest.mark.parametrize("seed", range(6))
+def test_trees_with_ties_and_zero_costs_match_scipy(seed):
+    # Costs 0, 1 or 2 make many equal keys in the heap and zero-cost links, where a
+    # decrease-key heap must neither lose a node nor settle one twice; scipy's Dijkstra
+    # gives the distances (explicit zeros kept: csgraph treats them as links).
+    rng = np.random.default_rng(100 + seed)
+    n, m = 200, 1200
+    tail = rng.integers(0, n, m)
+    head = rng.integers(0, n, m)
+    keep = tail != head
+    tail, head = tail[keep], head[keep]
+    cost = rng.integers(0, 3, tail.size).astype(float)
+    net = Network(node_ids=np.arange(n), tail=tail, head=head, capacity=1.0,
+                  free_flow_time=cost, zone_ids=[1, 2, 3], zone_nodes=[0, 1, 2],
+                  demand=np.ones((3, 3)) - np.eye(3), through_centroids=True)
+    best = {}
+    for k, (u, v) in enumerate(zip(tail, head, strict=True)):
+        best[(u, v)] = min(best.get((u, v), np.inf), cost[k])
+    rows, cols = zip(*best, strict=True)
+    vals = np.array(list(best.values()))
+    mat = csr_matrix((np.where(vals == 0, 1e-300, vals), (rows, cols)), shape=(n, n))
+    expected = scipy_dijkstra(mat, directed=True, indices=[0, 1, 2])
+    sp = ShortestPaths(net)
+    for i in range(3):
+        dist, pred = sp.tree(i, cost)
+        assert_allclose(dist, expected[i], atol=1e-250)
+        on = pred >= 0
+        assert np.array_equal(dist[head[pred[on]]], dist[tail[pred[on]]] + cost[pred[on]])
+        # the predecessors form a tree rooted at the origin: every chain reaches it
+        for v in np.flatnonzero(on):
+            steps = 0
+            while v != i:
+                v = tail[pred[v]]
+                steps += 1
+                assert steps <= n
+
+
+def test_negative_link_cost_is_refused():
+    from congest import solve
+    from congest.exceptions import NetworkError
+
+    net = Network(node_ids=[1, 2, 3], tail=[0, 0, 2], head=[1, 2, 1], capacity=1.0,
+                  free_flow_time=[5.0, 1.0, 1.0], fixed_cost=[0.0, -3.0, 0.0],
+                  link_ids=[11, 12, 13], zone_ids=[1, 2], zone_nodes=[0, 1],
+                  demand=[[0, 3], [0, 0]])
+    with pytest.raises(NetworkError, match="link 12 has a negative generalized cost"):
+        solve(net)
+
+
 @pytest.mark.parametrize("seed", range(8))
 def test_centroid_rule_matches_networkx(seed):
     net, cost = random_graph(seed, through_centroids=False)
