@@ -15,7 +15,8 @@ Every OD pair keeps the set of routes it uses, with their flows. One iteration:
    A route whose flow reaches zero is dropped once it costs noticeably more than the
    cheapest one (option ``keep``); nearly cheapest unused routes stay, since an OD pair
    whose routes differ only on links of almost constant cost would otherwise swing all
-   its flow between two routes and rediscover the other one iteration after iteration;
+   its flow between two routes and rediscover the other one iteration after iteration
+   (at most ``max_idle`` of them per pair);
 4. inner passes repeat step 3 over the fixed route sets (no shortest paths) until the
    excess cost is a small share of the iteration's start, since they are much cheaper
    than step 2 (an inner loop in the spirit of [2]_). They visit only the
@@ -69,7 +70,8 @@ from .paths import adjacency_costs, dijkstra
 
 __all__ = ["solve_gp", "RouteState"]
 
-# rows of the packed per-link parameter array
+# columns of the packed per-link parameter array (one row per link: a link update reads
+# one cache line, not six)
 _T0, _ALPHA, _BETA, _CAP, _CONST, _PRELOAD = range(6)
 # slots of the counter array
 _N_PATHS, _POOL_USED, _DEAD_LINKS, _STAMP = range(4)
@@ -118,14 +120,14 @@ class RouteState:
 # --------------------------------------------------------------------------- kernels
 @numba.njit(cache=True, inline="always")
 def _update_link(l, x, kind, par, so, cost, deriv):
-    w = x[l] + par[_PRELOAD, l]
-    t, d, d2 = time_derivatives_scalar(kind[l], par[_T0, l], par[_ALPHA, l], par[_BETA, l],
-                                       par[_CAP, l], w)
+    w = x[l] + par[l, _PRELOAD]
+    t, d, d2 = time_derivatives_scalar(kind[l], par[l, _T0], par[l, _ALPHA], par[l, _BETA],
+                                       par[l, _CAP], w)
     if so:
-        cost[l] = t + w * d + par[_CONST, l]
+        cost[l] = t + w * d + par[l, _CONST]
         deriv[l] = 2.0 * d + w * d2 if w > 0.0 else 2.0 * d
     else:
-        cost[l] = t + par[_CONST, l]
+        cost[l] = t + par[l, _CONST]
         deriv[l] = d
 
 
@@ -210,25 +212,32 @@ def _sum_flows(od_demand, od_first, p_start, p_len, p_flow, p_next, pool, x):
 
 @numba.njit(cache=True)
 def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_flow,
-                 p_next, pool, counters, mark, mark2, keep, prune):
+                 p_next, pool, counters, mark, mark2, keep, prune, p_cost, max_idle):
     """Newton moves of one OD pair's flow to its cheapest route; returns its excess cost.
 
-    The excess ``sum_p f_p (c_p - c_min)`` is measured before the moves.
+    The excess ``sum_p f_p (c_p - c_min)`` is measured before the moves. ``p_cost`` is
+    scratch space per route (the route costs at the start of the visit).
     """
     first = od_first[od]
     if first < 0 or p_next[first] < 0:
         return 0.0
     best = -1
     best_cost = np.inf
+    n_used = 0
     p = first
     while p >= 0:
         c = 0.0
         for i in range(p_start[p], p_start[p] + p_len[p]):
             c += cost[pool[i]]
+        p_cost[p] = c
         if c < best_cost:
             best_cost = c
             best = p
+        if p_flow[p] > 0.0:
+            n_used += 1
         p = p_next[p]
+    if not prune and n_used == 1 and p_flow[best] > 0.0:
+        return 0.0  # all flow is on the cheapest route: nothing to move or drop
     counters[_STAMP] += 1
     sb = counters[_STAMP]
     b0 = p_start[best]
@@ -237,6 +246,7 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
         mark[pool[i]] = sb
     excess = 0.0
     prev = -1
+    n_idle = 0
     p = first
     while p >= 0:
         nxt = p_next[p]
@@ -252,10 +262,7 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
                 prev = p
                 p = nxt
                 continue
-            cp = 0.0
-            for i in range(p_start[p], p_start[p] + p_len[p]):
-                cp += cost[pool[i]]
-            if cp - best_cost > keep * best_cost:
+            if p_cost[p] - best_cost > keep * best_cost or n_idle >= max_idle:
                 if prev < 0:
                     od_first[od] = nxt
                 else:
@@ -263,6 +270,7 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
                 counters[_DEAD_LINKS] += p_len[p]
                 p_len[p] = 0
             else:
+                n_idle += 1
                 prev = p
             p = nxt
             continue
@@ -348,7 +356,7 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
 @numba.njit(cache=True)
 def _column_pass(start, need, od_row, od_dnode, od_demand, tail, pred, x, kind, par, so,
                  cost, deriv, od_first, p_start, p_len, p_flow, p_hash, p_next, pool, counters,
-                 mark, mark2, work, keep, od_excess):
+                 mark, mark2, work, keep, od_excess, p_cost, max_idle):
     """Add each OD pair's tree route if new, then equilibrate the pair.
 
     Stops early (returning the OD index to resume from) when the route arrays could
@@ -365,7 +373,8 @@ def _column_pass(start, need, od_row, od_dnode, od_demand, tail, pred, x, kind, 
             od_excess[od] = 0.0
             if first >= 0 and p_next[first] >= 0:
                 e = _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
-                                 p_flow, p_next, pool, counters, mark, mark2, keep, True)
+                                 p_flow, p_next, pool, counters, mark, mark2, keep, True,
+                                 p_cost, max_idle)
                 od_excess[od] = e
                 excess += e
             continue
@@ -414,7 +423,7 @@ def _column_pass(start, need, od_row, od_dnode, od_demand, tail, pred, x, kind, 
             p_next[q] = od_first[od]
             od_first[od] = q
         e = _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
-                         p_flow, p_next, pool, counters, mark, mark2, keep, True)
+                         p_flow, p_next, pool, counters, mark, mark2, keep, True, p_cost, max_idle)
         # a pair that just got a route is always revisited by the next inner pass
         od_excess[od] = e if e > 0.0 else np.inf
         excess += e
@@ -423,7 +432,7 @@ def _column_pass(start, need, od_row, od_dnode, od_demand, tail, pred, x, kind, 
 
 @numba.njit(cache=True)
 def _inner_pass(x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_flow, p_next,
-                pool, counters, mark, mark2, keep, od_excess, threshold):
+                pool, counters, mark, mark2, keep, od_excess, threshold, p_cost, max_idle):
     """Equilibrate the OD pairs whose last excess cost was above ``threshold``."""
     excess = 0.0
     for od in range(od_first.size):
@@ -434,7 +443,7 @@ def _inner_pass(x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_flow,
             od_excess[od] = 0.0
             continue  # a single route has nothing to move (checked here: calls are dear)
         e = _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
-                         p_flow, p_next, pool, counters, mark, mark2, keep, False)
+                         p_flow, p_next, pool, counters, mark, mark2, keep, False, p_cost, max_idle)
         od_excess[od] = e
         excess += e
     return excess
@@ -594,6 +603,7 @@ class _Pool:
         self.start = np.zeros(n_paths, dtype=np.int64)
         self.length = np.zeros(n_paths, dtype=np.int64)
         self.flow = np.zeros(n_paths)
+        self.cost = np.zeros(n_paths)  # scratch: route costs during a visit
         self.hash = np.zeros(n_paths, dtype=np.int64)
         self.next = np.full(n_paths, -1, dtype=np.int64)
         self.links = np.zeros(n_pool, dtype=np.int32)
@@ -613,7 +623,7 @@ class _Pool:
             return
         if need_p > self.flow.size:
             size = max(need_p, 2 * self.flow.size)
-            for name in ("start", "length", "flow", "hash"):
+            for name in ("start", "length", "flow", "hash", "cost"):
                 old = getattr(self, name)
                 new = np.zeros(size, dtype=old.dtype)
                 new[:used_p] = old[:used_p]
@@ -769,7 +779,8 @@ def _check_same_network(old, net):
 
 # ------------------------------------------------------------------------------ solver
 def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
-             inner_max=40, inner_ratio=0.01, warm_ratio=1e-3, keep=0.01, accelerate=True):
+             inner_max=40, inner_ratio=0.01, warm_ratio=1e-3, keep=0.01, max_idle=1,
+             accelerate=True):
     """Path-based gradient projection (Jayakrishnan et al. 1994) for UE and SO.
 
     Parameters
@@ -791,6 +802,11 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         A route whose flow reaches zero stays in its OD pair's set (ready to take flow
         back without a new shortest-path search) while its cost is within ``keep``
         (relative) of the pair's cheapest route; it is checked once per iteration.
+    max_idle : int, default 1
+        Most routes an OD pair keeps without flow (the most recently found of those
+        within ``keep``). On large networks with many nearly equal routes, an unbounded
+        number of idle routes costs memory and time in every visit of the pair (on a
+        100,000-link grid-like network they outnumbered the used routes two to one).
     accelerate : bool, default True
         Extrapolate the route flows over cycles of inner passes (see :class:`_Accelerator`).
         It speeds up SO on congested networks (Barcelona, Winnipeg, Chicago Sketch: 30 to
@@ -824,8 +840,9 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     origin_nodes = sp.zone_nodes[origins]
     od_dnode = sp.zone_nodes[od_d]
     kind = model.kind
-    par = np.ascontiguousarray(np.vstack([model.t0, model.alpha, model.beta, model.capacity,
-                                          model.constant, model.preload]))
+    par = np.ascontiguousarray(np.column_stack([model.t0, model.alpha, model.beta,
+                                                model.capacity, model.constant,
+                                                model.preload]))
     x = np.zeros(n_links)
     cost = np.empty(n_links)
     deriv = np.empty(n_links)
@@ -872,7 +889,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
                                  pool.counters, mark, mark2, keep, od_excess,
-                                 0.0 if full else threshold)
+                                 0.0 if full else threshold, pool.cost, max_idle)
             was_full = full
             if first < 0:
                 first = excess
@@ -944,10 +961,15 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
                      pool.next, pool.links, route_tol, need)
         od = 0
         while od < n_od:
-            pool.reserve(n_od - od + 1, (n_od - od + 1) * 8 + n_nodes)
+            # room for a route per pair that needs one, at the mean length so far (8 links
+            # before any route is known; the pass stops early if that was too few)
+            n_new = int(np.count_nonzero(need[od:])) + 1
+            n_paths = int(pool.counters[_N_PATHS])
+            mean_len = pool.counters[_POOL_USED] / n_paths if n_paths else 8.0
+            pool.reserve(n_new, int(1.2 * n_new * mean_len) + n_nodes)
             od, _ = _column_pass(od, need, od_row, od_dnode, od_q, sp.tail, pred, x, kind, par,
                                  so, cost, deriv, *pool.args(), mark, mark2, work, keep,
-                                 od_excess)
+                                 od_excess, pool.cost, max_idle)
         # pairs whose excess is a negligible share of the total wait for the next pass
         threshold = 0.1 * ratio * excess_start / n_od
         # in exhaustive mode (slow progress) wide passes visit every pair with routes
@@ -958,7 +980,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
                                  pool.counters, mark, mark2, keep, od_excess,
-                                 wide if full else threshold)
+                                 wide if full else threshold, pool.cost, max_idle)
             was_full = full
             if excess <= ratio * excess_start:
                 if full:
