@@ -477,32 +477,55 @@ def _extrapolate(od_first, p_next, p_flow, step, od_demand, fac, od_excess):
 
 
 @numba.njit(cache=True)
-def _compact(od_first, p_start, p_len, p_flow, p_hash, p_next, pool, n_start, n_len,
-             n_flow, n_hash, n_next, n_pool, n_od_first, counters):
-    """Copy the live routes into fresh arrays (``n_*``), in OD order."""
-    q = 0
-    s = 0
+def _compact(od_first, p_start, p_len, p_flow, p_hash, p_next, pool, counters, new_id,
+             live):
+    """Drop the dead routes in place: live links moved down, live routes renumbered.
+
+    ``new_id`` and ``live`` are work arrays of at least ``counters[_N_PATHS]`` entries.
+    Nothing is allocated but the sort order, so a large pool is not copied into fresh
+    memory (page faults on gigabytes cost more than the copy).
+    """
+    n = counters[_N_PATHS]
+    for p in range(n):
+        new_id[p] = -1
     for od in range(od_first.size):
         p = od_first[od]
-        last = -1
-        n_od_first[od] = -1
         while p >= 0:
-            n_start[q] = s
-            n_len[q] = p_len[p]
-            n_flow[q] = p_flow[p]
-            n_hash[q] = p_hash[p]
-            n_next[q] = -1
-            for i in range(p_len[p]):
-                n_pool[s + i] = pool[p_start[p] + i]
-            s += p_len[p]
-            if last < 0:
-                n_od_first[od] = q
-            else:
-                n_next[last] = q
-            last = q
-            q += 1
+            new_id[p] = 0
             p = p_next[p]
-    counters[_N_PATHS] = q
+    m = 0
+    for p in range(n):
+        if new_id[p] == 0:
+            live[m] = p
+            m += 1
+    # links: the live routes in pool order, each moved down to the write position
+    order = np.argsort(p_start[live[:m]])
+    s = 0
+    for j in range(m):
+        p = live[order[j]]
+        a = p_start[p]
+        if a != s:
+            for i in range(p_len[p]):
+                pool[s + i] = pool[a + i]
+            p_start[p] = s
+        s += p_len[p]
+    # routes: renumbered in id order (the new id is never above the old one)
+    for j in range(m):
+        p = live[j]
+        new_id[p] = j
+        if p != j:
+            p_start[j] = p_start[p]
+            p_len[j] = p_len[p]
+            p_flow[j] = p_flow[p]
+            p_hash[j] = p_hash[p]
+            p_next[j] = p_next[p]
+    for j in range(m):
+        if p_next[j] >= 0:
+            p_next[j] = new_id[p_next[j]]
+    for od in range(od_first.size):
+        if od_first[od] >= 0:
+            od_first[od] = new_id[od_first[od]]
+    counters[_N_PATHS] = m
     counters[_POOL_USED] = s
     counters[_DEAD_LINKS] = 0
 
@@ -611,16 +634,16 @@ class _Pool:
 
     def reserve(self, n_paths, n_pool):
         """Make room for ``n_paths`` more routes and ``n_pool`` more link entries."""
+        if self._fits(n_paths, n_pool):
+            return
+        if self.counters[_DEAD_LINKS] > self.counters[_POOL_USED] // 4:
+            self.compact()
+            if self._fits(n_paths, n_pool):
+                return
         used_p = int(self.counters[_N_PATHS])
         used_l = int(self.counters[_POOL_USED])
-        dead = int(self.counters[_DEAD_LINKS])
         need_p = used_p + n_paths
         need_l = used_l + n_pool
-        if need_p <= self.flow.size and need_l <= self.links.size:
-            return
-        if dead > used_l // 2:
-            self.compact(extra_paths=n_paths, extra_links=n_pool)
-            return
         if need_p > self.flow.size:
             size = max(need_p, 2 * self.flow.size)
             for name in ("start", "length", "flow", "hash", "cost"):
@@ -636,16 +659,16 @@ class _Pool:
             new[:used_l] = self.links[:used_l]
             self.links = new
 
-    def compact(self, extra_paths=0, extra_links=0):
-        live_l = int(self.counters[_POOL_USED] - self.counters[_DEAD_LINKS])
-        n_paths = max(self.flow.size // 2, int(self.counters[_N_PATHS]) + extra_paths, 16)
-        n_pool = max(int(1.5 * live_l) + extra_links, 16)
-        fresh = _Pool(self.od_first.size, n_paths, n_pool)
+    def _fits(self, n_paths, n_pool):
+        return (self.counters[_N_PATHS] + n_paths <= self.flow.size
+                and self.counters[_POOL_USED] + n_pool <= self.links.size)
+
+    def compact(self):
+        """Drop dead routes and their links, in place."""
+        n = int(self.counters[_N_PATHS])
         _compact(self.od_first, self.start, self.length, self.flow, self.hash, self.next,
-                 self.links, fresh.start, fresh.length, fresh.flow, fresh.hash, fresh.next,
-                 fresh.links, fresh.od_first, self.counters)
-        fresh.counters[:] = self.counters
-        self.__dict__.update(fresh.__dict__)
+                 self.links, self.counters, np.empty(n, dtype=np.int64),
+                 np.empty(n, dtype=np.int64))
 
     def args(self):
         return (self.od_first, self.start, self.length, self.flow, self.hash, self.next,
