@@ -24,9 +24,10 @@ With ``store=FOLDER`` every finished point is written at once, atomically, to
 ``FOLDER/<key>.json``, where ``key`` hashes the network's content, the solver settings
 and the point. Running the sweep again with the same arguments loads those points and
 computes only the others; points not yet done at the start of a chain are started cold.
-A point whose worker dies is rerun elsewhere (``retries``); a point that fails, or whose
-worker died once too often, is reported with its error in :attr:`SweepResult.failed`
-and does not stop the others (the rest of its chain starts cold).
+A point whose worker dies is rerun elsewhere, and at last alone (``retries``); a point
+that fails, or whose worker kept dying while it ran alone, is reported with its error
+in :attr:`SweepResult.failed` and does not stop the others (the rest of its chain
+starts cold).
 
 Columns
 -------
@@ -60,6 +61,8 @@ References
 
 from __future__ import annotations
 
+import asyncio
+import contextlib
 import hashlib
 import json
 import math
@@ -87,6 +90,11 @@ __all__ = [
 
 #: Columns that measure the run, not the result (left out when comparing tables).
 TIMING_COLUMNS = ("wall_time_s", "ue_wall_time_s", "so_wall_time_s")
+
+# Seconds between looks at the cluster while a Dask sweep waits for points.
+_POLL_SECONDS = 2.0
+# The embedded cluster's lost-worker-timeout: far longer than any sweep.
+_NANNY_KEEP = "30 days"
 
 
 @dataclass(frozen=True)
@@ -474,21 +482,34 @@ def _json_row(row):
 
 
 # ------------------------------------------------------------------ engines
-def _client_for(scheduler, n_workers, processes, retries):
-    """(client, cluster) for ``scheduler``; an embedded cluster is closed by the caller."""
+@contextlib.contextmanager
+def _dask_client(scheduler, n_workers, processes, retries):
+    """A client for ``scheduler``; an embedded cluster lasts as long as the context."""
     import dask
     from distributed import Client, LocalCluster
 
     if isinstance(scheduler, Client):
-        return scheduler, None
+        yield scheduler
+        return
     if isinstance(scheduler, str):
-        return Client(scheduler), None
+        with Client(scheduler) as client:
+            yield client
+        return
     n = n_workers or os.cpu_count() or 1
-    # a task whose worker dies is rerun on another (or a restarted) worker this often
-    with dask.config.set({"distributed.scheduler.allowed-failures": retries}):
-        cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=processes,
-                               dashboard_address=None, silence_logs=40)
-    return Client(cluster), cluster
+    config = {
+        # a task whose worker dies is rerun on another (or a restarted) worker this
+        # often before the sweep sets it aside to rerun alone
+        "distributed.scheduler.allowed-failures": retries,
+        # the cluster closes a worker's nanny for good if the worker is down (being
+        # restarted) when this long has passed since one of its deaths; here nannies
+        # restart their workers, and the sweep itself gives up on a cluster without
+        # workers (worker_timeout)
+        "distributed.deploy.lost-worker-timeout": _NANNY_KEEP,
+    }
+    with dask.config.set(config), LocalCluster(
+            n_workers=n, threads_per_worker=1, processes=processes,
+            dashboard_address=None, silence_logs=40) as cluster, Client(cluster) as client:
+        yield client
 
 
 class _Run:
@@ -532,76 +553,158 @@ def _run_serial(net, settings, chains, run):
     return False
 
 
-def _run_dask(net, settings, chains, run, client, retries):
-    from distributed import wait
+class _DaskSweep:
+    """The chains on a Dask cluster, with reruns alone for points whose worker died.
 
-    # a task rather than scattered data: if the worker holding it dies, the scheduler
-    # can make it again
-    net_future = client.submit(_identity, net, pure=False, retries=retries)
-    pending = {}  # row future -> (chain, position)
-    second_tries = set()
+    When a worker dies, the scheduler counts the death against every task assigned to
+    that worker, so a point queued behind one that kills its worker can end in
+    ``KilledWorker`` as well. Such points are set aside and, once everything else is
+    done, rerun one at a time with nothing else of the sweep on the cluster: a point
+    that finishes there was a bystander; one whose worker died ``retries + 1`` times
+    while it ran alone is reported as failed.
+    """
 
-    def submit(chain, first):
+    def __init__(self, net, settings, record, client, retries, worker_timeout):
+        self.net, self.settings, self.record = net, settings, record
+        self.client, self.retries = client, retries
+        self.worker_timeout = float(worker_timeout)
+        self.pending = {}  # row future -> (chain, position)
+        self.suspects = []  # points whose worker died, to rerun alone
+        self.deaths = {}  # point -> worker deaths while it ran alone
+        self._net_future = None
+
+    def net_future(self):
+        # a task rather than scattered data: if the worker holding it dies, the
+        # scheduler can make it again; made anew should the scheduler give up on it
+        if self._net_future is None or self._net_future.status == "error":
+            self._net_future = self.client.submit(_identity, self.net, pure=False,
+                                                  retries=self.retries)
+        return self._net_future
+
+    def submit(self, chain, first):
         previous = None
         for pos in range(first, len(chain)):
-            out = client.submit(_point_task, net_future, settings, chain[pos], previous,
-                                pure=False, retries=retries)
-            row = client.submit(_outcome_row, out, pure=False, retries=retries)
-            pending[row] = (chain, pos)
+            out = self.client.submit(_point_task, self.net_future(), self.settings,
+                                     chain[pos], previous, pure=False,
+                                     retries=self.retries)
+            row = self.client.submit(_outcome_row, out, pure=False, retries=self.retries)
+            self.pending[row] = (chain, pos)
             previous = out
 
-    def settle(fut):
-        """Record one finished row future; True if the callback asks to stop."""
-        entry = pending.pop(fut, None)
-        if entry is None:
-            return False  # dropped after an earlier point of its chain failed
-        chain, pos = entry
+    def run(self, chains):
+        """Run every chain; True if the callback stopped the sweep."""
+        for chain in chains:
+            self.submit(chain, 0)
         try:
-            row, error = fut.result()
-        except Exception as err:  # noqa: BLE001 - reported with the point
-            # Dask gave up on the task: its worker died more often than allowed, or it
-            # could not be run or sent back. A worker's death also fails the tasks
-            # queued beside it, so a point gets one fresh attempt before it is
-            # reported; the rest of its chain restarts cold either way.
-            if any(c is chain and p < pos for c, p in pending.values()):
-                pending[fut] = entry  # wait: the earlier point's outcome decides
-                time.sleep(0.01)
-                return False
-            later = [f for f, (c, p) in pending.items() if c is chain and p > pos]
-            for f in later:
-                del pending[f]
-            client.cancel(later)
-            point = chain[pos]
-            if point not in second_tries:
-                second_tries.add(point)
-                submit(chain, pos)
-                return False
-            if pos + 1 < len(chain):
-                submit(chain, pos + 1)
-            row, error = None, f"{type(err).__name__}: {err}"
-        return run.finish(chain[pos], row, error)
+            while self.pending or self.suspects:
+                if not self.pending:
+                    self.submit([self.suspects.pop(0)], 0)
+                if not self.wait():
+                    self.abandon(f"the Dask cluster had no worker for "
+                                 f"{self.worker_timeout:g} s")
+                    return False
+                for fut in self.ready():
+                    if fut in self.pending and self.settle(fut):
+                        return True
+        finally:
+            if self.pending:
+                self.client.cancel(list(self.pending))
+        return False
 
-    for chain in chains:
-        submit(chain, 0)
-    stopped = False
-    try:
-        while pending and not stopped:
-            done, _ = wait(list(pending), return_when="FIRST_COMPLETED")
-            # earlier points of a chain first: their errors explain the later ones
-            for fut in sorted(done, key=lambda f: pending.get(f, (None, -1))[1]):
-                if settle(fut):
-                    stopped = True
-                    break
-    finally:
-        if pending:
-            client.cancel(list(pending))
-    return stopped
+    def ready(self):
+        """Row futures to settle now, earlier points of a chain first.
+
+        A task Dask gave up on waits for the earlier points of its chain: when one of
+        those failed, its error is this one's too.
+        """
+        out = []
+        for fut, (chain, pos) in self.pending.items():
+            if fut.done() and (fut.status == "finished" or not any(
+                    c is chain and p < pos for c, p in self.pending.values())):
+                out.append(fut)
+        return sorted(out, key=lambda f: self.pending[f][1])
+
+    def wait(self):
+        """Wait until a row future is ready; False if the cluster stays without workers.
+
+        Every wait is bounded: a cluster whose workers all died and were not restarted
+        (or that never had any) is noticed after ``worker_timeout`` seconds.
+        """
+        from distributed import wait
+        from distributed.client import FuturesCancelledError
+
+        since = None
+        while self.pending and not self.ready():
+            waiting = [f for f in self.pending if not f.done()]
+            try:
+                wait(waiting, timeout=_POLL_SECONDS, return_when="FIRST_COMPLETED")
+                continue
+            except FuturesCancelledError:
+                continue  # reported with the point
+            except asyncio.TimeoutError:  # TimeoutError from Python 3.11 on
+                pass
+            if self.n_workers():
+                since = None
+            elif since is None:
+                since = time.monotonic()
+            elif time.monotonic() - since > self.worker_timeout:
+                return False
+        return True
+
+    def n_workers(self):
+        try:
+            return len(self.client.nthreads(callback_timeout=_POLL_SECONDS))
+        except (OSError, asyncio.TimeoutError):
+            return 0  # the scheduler does not answer: no worker can be reached either
+
+    def settle(self, fut):
+        """Record one ready row future; True if the callback asks to stop."""
+        from distributed import KilledWorker
+
+        chain, pos = self.pending.pop(fut)
+        point = chain[pos]
+        if fut.status == "finished":
+            row, error = fut.result()
+            return self.record.finish(point, row, error)
+        # Dask gave up on the task; the rest of its chain restarts cold
+        later = [f for f, (c, p) in self.pending.items() if c is chain and p > pos]
+        for f in later:
+            del self.pending[f]
+        self.client.cancel(later)
+        if pos + 1 < len(chain):
+            self.submit(chain, pos + 1)
+        err = fut.exception() if fut.status == "error" else None
+        if err is None:
+            return self.record.finish(point, None, "cancelled by the Dask scheduler")
+        error = f"{type(err).__name__}: {err}"
+        if isinstance(err, KilledWorker):
+            if point not in self.deaths:  # it did not run alone: it may be a bystander
+                self.deaths[point] = 0
+                self.suspects.append(point)
+                return False
+            # Dask itself reran it this often before giving up
+            self.deaths[point] += getattr(err, "allowed_failures", 0) + 1
+            if self.deaths[point] <= self.retries:
+                self.suspects.insert(0, point)
+                return False
+            error = (f"{type(err).__name__}: its worker died {self.deaths[point]} times "
+                     f"while it ran alone. {err}")
+        return self.record.finish(point, None, error)
+
+    def abandon(self, reason):
+        """Report every point not yet finished as failed, with ``reason``."""
+        points = [chain[pos] for chain, pos in self.pending.values()] + self.suspects
+        self.client.cancel(list(self.pending))
+        self.pending.clear()
+        self.suspects = []
+        for point in points:
+            self.record.finish(point, None, f"not run: {reason}")
 
 
 def sweep(net, demand_scales, *, toll_scales=None, advice_shares=None, scenarios=(),
           scenario_options=None, method="auto", tol=1e-6, max_iter=None, store=None,
           scheduler=None, n_workers=None, processes=True, chunk_size=2, retries=2,
-          numba_threads=None, callback=None) -> SweepResult:
+          worker_timeout=60.0, numba_threads=None, callback=None) -> SweepResult:
     """Solve UE and SO over a range of demand levels (and toll scales, advice shares).
 
     Parameters
@@ -638,10 +741,16 @@ def sweep(net, demand_scales, *, toll_scales=None, advice_shares=None, scenarios
         Points per warm-start chain. Longer chains warm-start more often; shorter ones
         spread the work more evenly over the workers (heavy demand levels cost more).
     retries : int, default 2
-        How often a point is rerun after its worker died (the embedded cluster's
-        ``allowed-failures``; a running cluster keeps its own setting) and after an
-        error in Dask itself. Errors in the computation are not retried: the point
-        is reported as failed.
+        How often a point is rerun after its worker died, and after an error in Dask
+        itself. Dask reruns it first (the embedded cluster's ``allowed-failures``; a
+        running cluster keeps its own setting); a point Dask gives up on is rerun
+        alone (see Notes) and reported as failed once its worker has died at least
+        ``retries + 1`` times while it ran alone. Errors in the computation are not
+        retried: the point is reported as failed.
+    worker_timeout : float, default 60
+        Seconds the sweep waits while the cluster has no worker (all died and none
+        came back, or none ever joined); then the points not yet finished are
+        reported as failed.
     numba_threads : int, optional
         Threads of the compiled kernels in each point. Default: cores / workers in the
         embedded cluster, numba's own setting elsewhere. The all-or-nothing loading
@@ -665,6 +774,13 @@ def sweep(net, demand_scales, *, toll_scales=None, advice_shares=None, scenarios
     Each point costs two to four equilibrium solves. In worker processes the compiled
     kernels come from numba's on-disk cache, so a fresh worker pays only the load
     time; the all-or-nothing kernel runs on ``cores / n_workers`` threads there.
+
+    When a worker dies, Dask counts the death against every point assigned to that
+    worker, including those only queued there behind the point that was running. So
+    a point Dask gives up on (``KilledWorker``) is not reported at once: it waits
+    until the other points are done and is then rerun with nothing else of the sweep
+    on the cluster, cold. Points queued behind a point that kills its worker finish
+    there; only a point that keeps killing its worker alone is reported as failed.
 
     Examples
     --------
@@ -720,13 +836,10 @@ def sweep(net, demand_scales, *, toll_scales=None, advice_shares=None, scenarios
         if scheduler == "serial":
             stopped = _run_serial(net, settings, chains, run)
         else:
-            client, cluster = _client_for(scheduler, n_workers, processes, int(retries))
-            try:
-                stopped = _run_dask(net, settings, chains, run, client, int(retries))
-            finally:
-                if cluster is not None:
-                    client.close()
-                    cluster.close()
+            with _dask_client(scheduler, n_workers, processes, int(retries)) as client:
+                engine = _DaskSweep(net, settings, run, client, int(retries),
+                                    worker_timeout)
+                stopped = engine.run(chains)
     rows.update(run.rows)
     table = pd.DataFrame([rows[p] for p in points if p in rows])
     order = {p: i for i, p in enumerate(points)}

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import contextlib
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -189,6 +191,7 @@ import congest.equilibrium as equilibrium
 
 equilibrium.METHODS["dies_once"] = "congest_dies_once:solve"
 equilibrium.METHODS["dies_at_two"] = "congest_dies_once:dies_at_two"
+equilibrium.METHODS["slow_beside_two"] = "congest_dies_once:slow_beside_two"
 '''
 
 DIES_ONCE = '''
@@ -211,36 +214,126 @@ def dies_at_two(problem, **kw):
         time.sleep(1.0)  # as a real point takes a while: the rows before it are fetched
         os._exit(1)  # every time
     return solve(problem, **kw)
+
+
+def slow_beside_two(problem, **kw):
+    # the other points take longer than demand 2 takes to kill its worker: started
+    # beside it, they are still running when the worker dies
+    if problem.network.total_demand != 2.0:
+        time.sleep(2.0)
+    return dies_at_two(problem, **kw)
 '''
 
 
-@pytest.mark.slow  # restarts worker processes; a nanny that fails to restart one stalls it
-def test_worker_that_dies_is_retried(tmp_path):
-    # a point whose worker dies is rerun (Dask's allowed-failures); one that kills its
-    # worker every time is reported after that many reruns and the others still finish
+def _dying_methods(folder):
+    """Write the methods above into ``folder``; returns the worker preload's path."""
+    (folder / "congest_dies_once.py").write_text(
+        DIES_ONCE.format(marker=str(folder / "died")))
+    preload = folder / "preload.py"
+    preload.write_text(WORKER_PRELOAD.format(folder=str(folder)))
+    return preload
+
+
+@contextlib.contextmanager
+def _dying_cluster(folder, threads=1):
+    """A cluster of one worker process that knows the methods above.
+
+    Dask reruns a task once after its worker died (``allowed-failures`` 1), fewer than
+    the sweep's default ``retries``, as a running cluster may have its own setting.
+    The cluster would close the nanny for good if its worker happened to be down
+    (being restarted) 15 s after one of its deaths (``lost-worker-timeout``), as the
+    embedded cluster of :func:`sweep` is kept from doing.
+    """
     import dask
     from distributed import Client, LocalCluster
 
-    (tmp_path / "congest_dies_once.py").write_text(
-        DIES_ONCE.format(marker=str(tmp_path / "died")))
-    preload = tmp_path / "preload.py"
-    preload.write_text(WORKER_PRELOAD.format(folder=str(tmp_path)))
-    with dask.config.set({"distributed.scheduler.allowed-failures": 1}), LocalCluster(
-            n_workers=1, threads_per_worker=1, processes=True, dashboard_address=None,
-            silence_logs=50, preload=[str(preload)]) as cluster, Client(cluster) as client:
+    preload = _dying_methods(folder)
+    config = {"distributed.scheduler.allowed-failures": 1,
+              "distributed.deploy.lost-worker-timeout": "30 days"}
+    with dask.config.set(config), LocalCluster(
+            n_workers=1, threads_per_worker=threads, processes=True,
+            dashboard_address=None, silence_logs=50,
+            preload=[str(preload)]) as cluster, Client(cluster) as client:
+        yield client
+
+
+def _pigou_poa(q):
+    # Pigou (1920), q0 = 1: UE puts x = min(q, 1) on the variable link, SO x = min(q, 1/2);
+    # total cost x^2 + (q - x) at each (as in the closed-form test above)
+    q = np.asarray(q, dtype=float)
+    x_ue, x_so = np.minimum(q, 1.0), np.minimum(q, 0.5)
+    return (x_ue**2 + q - x_ue) / (x_so**2 + q - x_so)
+
+
+@pytest.mark.slow  # kills and restarts worker processes
+def test_worker_that_dies_is_retried(tmp_path):
+    # a point whose worker dies once is rerun and finishes; one that kills its worker
+    # every time is reported with KilledWorker, and the others still finish
+    with _dying_cluster(tmp_path) as client:
         res = sweep(pigou(), [0.5, 1.0, 2.0], scheduler=client, method="dies_once",
                     tol=1e-10)
+        assert (tmp_path / "died").exists()
         bad = sweep(pigou(), [1.0, 2.0, 3.0], scheduler=client, method="dies_at_two",
                     tol=1e-10)
     assert not res.failed, res.failed
-    assert (tmp_path / "died").exists()
-    assert [p.demand_scale for p, _ in bad.failed] == [2.0]
-    assert "KilledWorker" in bad.failed[0][1]
-    assert bad.table["demand_scale"].tolist() == [1.0, 3.0]
-    assert not res.failed
     # Pigou (1920) closed form with q0 = 1: PoA 1, 4/3 and 2 / 1.75
     np.testing.assert_allclose(res.table["price_of_anarchy"], [1.0, 4 / 3, 2 / 1.75],
                                rtol=1e-8)
+    assert [p.demand_scale for p, _ in bad.failed] == [2.0], bad.failed
+    assert bad.failed[0][1].startswith("KilledWorker: its worker died")
+    assert bad.table["demand_scale"].tolist() == [1.0, 3.0]
+    np.testing.assert_allclose(bad.table["price_of_anarchy"], _pigou_poa([1.0, 3.0]),
+                               rtol=1e-8)
+
+
+@pytest.mark.slow  # kills and restarts worker processes
+def test_points_beside_a_killing_point_finish(tmp_path):
+    # one point per chain on a worker of two threads: demand 3 runs beside demand 2
+    # each time demand 2 kills the worker, so Dask gives up on both; only demand 2,
+    # which also kills its worker when it runs alone, is reported. Through the
+    # scheduler's address, as `congest sweep --scheduler ADDRESS` does.
+    (tmp_path / "died").touch()  # only demand 2 kills its worker
+    with _dying_cluster(tmp_path, threads=2) as client:
+        res = sweep(pigou(), [2.0, 3.0], scheduler=client.scheduler.address,
+                    method="slow_beside_two", tol=1e-10, chunk_size=1, retries=1)
+    assert [p.demand_scale for p, _ in res.failed] == [2.0], res.failed
+    assert res.failed[0][1].startswith("KilledWorker: its worker died")
+    assert res.table["demand_scale"].tolist() == [3.0]
+    np.testing.assert_allclose(res.table["price_of_anarchy"], _pigou_poa([3.0]),
+                               rtol=1e-8)
+
+
+@pytest.mark.slow  # kills and restarts worker processes
+def test_embedded_cluster_reruns_points_whose_worker_died(tmp_path):
+    # the sweep's own cluster (here of one worker) loads the methods through Dask's
+    # worker preload setting. Dask reruns demand 2 `retries` times, then the sweep
+    # reruns it alone, where its worker dies `retries` + 1 times again.
+    import dask
+
+    preload = _dying_methods(tmp_path)
+    (tmp_path / "died").touch()  # only demand 2 kills its worker
+    with dask.config.set({"distributed.worker.preload": [str(preload)]}):
+        res = sweep(pigou(), [1.0, 2.0, 3.0], n_workers=1, method="dies_at_two",
+                    tol=1e-10, retries=1, store=tmp_path / "points")
+    assert [p.demand_scale for p, _ in res.failed] == [2.0], res.failed
+    assert res.failed[0][1].startswith("KilledWorker: its worker died 2 times")
+    assert res.table["demand_scale"].tolist() == [1.0, 3.0]
+    np.testing.assert_allclose(res.table["price_of_anarchy"], _pigou_poa([1.0, 3.0]),
+                               rtol=1e-8)
+    assert len(list((tmp_path / "points").glob("*.json"))) == 2
+
+
+def test_cluster_without_workers_reports_the_points():
+    # a cluster whose workers are gone for good: the points are reported, not awaited
+    from distributed import Client, LocalCluster
+
+    with LocalCluster(n_workers=0, processes=False, dashboard_address=None,
+                      silence_logs=50) as cluster, Client(cluster) as client:
+        res = sweep(pigou(), [0.5, 1.0], scheduler=client, worker_timeout=1.0)
+    assert res.table.empty
+    assert [p.demand_scale for p, _ in res.failed] == [0.5, 1.0]
+    for _, error in res.failed:
+        assert error == "not run: the Dask cluster had no worker for 1 s"
 
 
 def test_store_keys_depend_on_network_settings_and_point(tmp_path):
