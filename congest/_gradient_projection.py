@@ -353,22 +353,83 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
     return excess
 
 
-@numba.njit(cache=True)
-def _column_pass(start, need, od_row, od_dnode, od_demand, tail, pred, x, kind, par, so,
-                 cost, deriv, od_first, p_start, p_len, p_flow, p_hash, p_next, pool, counters,
-                 mark, mark2, work, keep, od_excess, p_cost, max_idle):
-    """Add each OD pair's tree route if new, then equilibrate the pair.
+def _find_routes_impl(need, od_row, od_dnode, tail, pred, od_first, p_start, p_len, p_hash,
+                      p_next, pool, n_chunks, new_len, new_hash):
+    """The tree route of every OD pair that needs one: its length, or -1 if it has none
+    or already knows it.
 
-    Stops early (returning the OD index to resume from) when the route arrays could
-    overflow; returns ``(next_od, excess)``.
+    Read-only on the route pool, so the pairs are split over threads.
     """
-    n_od = od_first.size
-    max_len = work.size
+    n_od = need.size
+    for ch in numba.prange(n_chunks):
+        work = np.empty(pred.shape[1], dtype=np.int32)
+        for od in range(ch, n_od, n_chunks):
+            new_len[od] = -1
+            if not need[od]:
+                continue
+            row = od_row[od]
+            node = od_dnode[od]
+            n = 0
+            h = 1469598103934665603
+            while True:
+                l = pred[row, node]
+                if l < 0:
+                    break
+                work[n] = l
+                n += 1
+                h = (h ^ l) * 1099511628211
+                node = tail[l]
+            found = False
+            p = od_first[od]
+            while p >= 0 and not found:
+                if p_hash[p] == h and p_len[p] == n:
+                    s = p_start[p]
+                    same = True
+                    for i in range(n):
+                        if pool[s + i] != work[n - 1 - i]:
+                            same = False
+                            break
+                    found = same
+                p = p_next[p]
+            if not found:
+                new_len[od] = n
+                new_hash[od] = h
+
+
+def _write_routes_impl(new_len, new_at, od_row, od_dnode, tail, pred, pool, n_chunks):
+    """Write the links of each new tree route, in travel order, at ``pool[new_at[od]:]``."""
+    n_od = new_len.size
+    for ch in numba.prange(n_chunks):
+        for od in range(ch, n_od, n_chunks):
+            n = new_len[od]
+            if n <= 0:
+                continue
+            row = od_row[od]
+            node = od_dnode[od]
+            s = new_at[od] + n - 1
+            for i in range(n):
+                l = pred[row, node]
+                pool[s - i] = l
+                node = tail[l]
+
+
+# A pass over a million OD pairs is worth two threads; small networks run the serial twin.
+_find_routes_parallel = numba.njit(cache=True, parallel=True)(_find_routes_impl)
+_find_routes_serial = numba.njit(cache=True)(_find_routes_impl)
+_write_routes_parallel = numba.njit(cache=True, parallel=True)(_write_routes_impl)
+_write_routes_serial = numba.njit(cache=True)(_write_routes_impl)
+
+
+@numba.njit(cache=True)
+def _column_pass(new_len, new_at, new_hash, od_demand, x, kind, par, so, cost, deriv,
+                 od_first, p_start, p_len, p_flow, p_hash, p_next, pool, counters, mark,
+                 mark2, keep, od_excess, p_cost, max_idle):
+    """Join each OD pair's new tree route (already written to the pool) to its set, then
+    equilibrate the pair. Returns the excess cost found."""
     excess = 0.0
-    for od in range(start, n_od):
-        if counters[_N_PATHS] + 1 > p_flow.size or counters[_POOL_USED] + max_len > pool.size:
-            return od, excess
-        if not need[od]:
+    for od in range(od_first.size):
+        n = new_len[od]
+        if n < 0:
             first = od_first[od]
             od_excess[od] = 0.0
             if first >= 0 and p_next[first] >= 0:
@@ -378,56 +439,29 @@ def _column_pass(start, need, od_row, od_dnode, od_demand, tail, pred, x, kind, 
                 od_excess[od] = e
                 excess += e
             continue
-        row = od_row[od]
-        node = od_dnode[od]
-        n = 0
-        h = 1469598103934665603
-        while True:
-            l = pred[row, node]
-            if l < 0:
-                break
-            work[n] = l
-            n += 1
-            h = (h ^ l) * 1099511628211
-            node = tail[l]
-        found = False
-        p = od_first[od]
-        while p >= 0 and not found:
-            if p_hash[p] == h and p_len[p] == n:
-                s = p_start[p]
-                same = True
-                for i in range(n):
-                    if pool[s + i] != work[n - 1 - i]:
-                        same = False
-                        break
-                found = same
-            p = p_next[p]
-        if not found:
-            q = counters[_N_PATHS]
-            counters[_N_PATHS] += 1
-            s = counters[_POOL_USED]
-            counters[_POOL_USED] += n
-            for i in range(n):
-                pool[s + i] = work[n - 1 - i]
-            p_start[q] = s
-            p_len[q] = n
-            p_hash[q] = h
-            if od_first[od] < 0:
-                f = od_demand[od]
-                p_flow[q] = f
-                for i in range(s, s + n):
-                    x[pool[i]] += f
-                    _update_link(pool[i], x, kind, par, so, cost, deriv)
-            else:
-                p_flow[q] = 0.0
-            p_next[q] = od_first[od]
-            od_first[od] = q
+        q = counters[_N_PATHS]
+        counters[_N_PATHS] += 1
+        s = new_at[od]
+        p_start[q] = s
+        p_len[q] = n
+        p_hash[q] = new_hash[od]
+        if od_first[od] < 0:
+            f = od_demand[od]
+            p_flow[q] = f
+            for i in range(s, s + n):
+                x[pool[i]] += f
+                _update_link(pool[i], x, kind, par, so, cost, deriv)
+        else:
+            p_flow[q] = 0.0
+        p_next[q] = od_first[od]
+        od_first[od] = q
         e = _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
-                         p_flow, p_next, pool, counters, mark, mark2, keep, True, p_cost, max_idle)
+                         p_flow, p_next, pool, counters, mark, mark2, keep, True, p_cost,
+                         max_idle)
         # a pair that just got a route is always revisited by the next inner pass
         od_excess[od] = e if e > 0.0 else np.inf
         excess += e
-    return n_od, excess
+    return excess
 
 
 @numba.njit(cache=True)
@@ -888,13 +922,18 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     od_flat = od_row * net.n_zones + od_d
     mark = np.zeros(n_links, dtype=np.int64)
     mark2 = np.zeros(n_links, dtype=np.int64)
-    work = np.empty(n_nodes, dtype=np.int32)
     need = np.zeros(n_od, dtype=np.bool_)
+    new_len = np.zeros(n_od, dtype=np.int64)
+    new_at = np.zeros(n_od, dtype=np.int64)
+    new_hash = np.zeros(n_od, dtype=np.int64)
     od_excess = np.zeros(n_od)
     # a tree route joins only if cheaper than the OD's routes by more than rounding
     route_tol = min(1e-13, 0.1 * tol)
     n_chunks = max(1, min(numba.get_num_threads(), origins.size))
-    trees = _trees_parallel if origins.size * n_links > _PARALLEL_WORK else _trees_serial
+    big = origins.size * n_links > _PARALLEL_WORK
+    trees = _trees_parallel if big else _trees_serial
+    find_routes = _find_routes_parallel if big else _find_routes_serial
+    write_routes = _write_routes_parallel if big else _write_routes_serial
     converged = False
     message = ""
     k = 0
@@ -982,17 +1021,20 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         excess_start = max(tstt - sptt, 0.0)
         _needs_route(od_row, od_d, zdist, cost, pool.od_first, pool.start, pool.length,
                      pool.next, pool.links, route_tol, need)
-        od = 0
-        while od < n_od:
-            # room for a route per pair that needs one, at the mean length so far (8 links
-            # before any route is known; the pass stops early if that was too few)
-            n_new = int(np.count_nonzero(need[od:])) + 1
-            n_paths = int(pool.counters[_N_PATHS])
-            mean_len = pool.counters[_POOL_USED] / n_paths if n_paths else 8.0
-            pool.reserve(n_new, int(1.2 * n_new * mean_len) + n_nodes)
-            od, _ = _column_pass(od, need, od_row, od_dnode, od_q, sp.tail, pred, x, kind, par,
-                                 so, cost, deriv, *pool.args(), mark, mark2, work, keep,
-                                 od_excess, pool.cost, max_idle)
+        find_routes(need, od_row, od_dnode, sp.tail, pred, pool.od_first, pool.start,
+                    pool.length, pool.hash, pool.next, pool.links, n_chunks, new_len,
+                    new_hash)
+        # new routes go at the end of the pool, in OD order
+        np.maximum(new_len, 0, out=new_at)
+        n_links_new = int(new_at.sum())
+        pool.reserve(int(np.count_nonzero(new_len >= 0)), n_links_new)
+        np.cumsum(new_at, out=new_at)
+        new_at -= np.maximum(new_len, 0)
+        new_at += pool.counters[_POOL_USED]
+        write_routes(new_len, new_at, od_row, od_dnode, sp.tail, pred, pool.links, n_chunks)
+        pool.counters[_POOL_USED] += n_links_new
+        _column_pass(new_len, new_at, new_hash, od_q, x, kind, par, so, cost, deriv,
+                     *pool.args(), mark, mark2, keep, od_excess, pool.cost, max_idle)
         # pairs whose excess is a negligible share of the total wait for the next pass
         threshold = 0.1 * ratio * excess_start / n_od
         # in exhaustive mode (slow progress) wide passes visit every pair with routes
