@@ -427,6 +427,30 @@ def _column_pass(new_len, new_at, new_hash, od_demand, x, kind, par, so, cost, d
     """Join each OD pair's new tree route (already written to the pool) to its set, then
     equilibrate the pair. Returns the excess cost found."""
     excess = 0.0
+    # pairs without routes (a cold start, new pairs of a warm start) take their whole
+    # demand on the tree route first, and the link costs are evaluated once after that
+    loaded = False
+    for od in range(od_first.size):
+        n = new_len[od]
+        if n < 0 or od_first[od] >= 0:
+            continue
+        q = counters[_N_PATHS]
+        counters[_N_PATHS] += 1
+        s = new_at[od]
+        p_start[q] = s
+        p_len[q] = n
+        p_hash[q] = new_hash[od]
+        p_flow[q] = od_demand[od]
+        p_next[q] = -1
+        od_first[od] = q
+        new_len[od] = -1
+        od_excess[od] = 0.0
+        for i in range(s, s + n):
+            x[pool[i]] += od_demand[od]
+        loaded = True
+    if loaded:
+        for l in range(x.size):
+            _update_link(l, x, kind, par, so, cost, deriv)
     for od in range(od_first.size):
         n = new_len[od]
         if n < 0:
@@ -445,14 +469,7 @@ def _column_pass(new_len, new_at, new_hash, od_demand, x, kind, par, so, cost, d
         p_start[q] = s
         p_len[q] = n
         p_hash[q] = new_hash[od]
-        if od_first[od] < 0:
-            f = od_demand[od]
-            p_flow[q] = f
-            for i in range(s, s + n):
-                x[pool[i]] += f
-                _update_link(pool[i], x, kind, par, so, cost, deriv)
-        else:
-            p_flow[q] = 0.0
+        p_flow[q] = 0.0
         p_next[q] = od_first[od]
         od_first[od] = q
         e = _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
