@@ -420,6 +420,20 @@ _write_routes_parallel = numba.njit(cache=True, parallel=True)(_write_routes_imp
 _write_routes_serial = numba.njit(cache=True)(_write_routes_impl)
 
 
+@numba.njit(cache=True, inline="always")
+def _join_route(od, n, start, h, flow, od_first, p_start, p_len, p_flow, p_hash, p_next,
+                counters):
+    """Give OD pair ``od`` a new route of ``n`` links at ``pool[start:]`` with ``flow``."""
+    q = counters[_N_PATHS]
+    counters[_N_PATHS] += 1
+    p_start[q] = start
+    p_len[q] = n
+    p_hash[q] = h
+    p_flow[q] = flow
+    p_next[q] = od_first[od]
+    od_first[od] = q
+
+
 @numba.njit(cache=True)
 def _column_pass(new_len, new_at, new_hash, od_demand, x, kind, par, so, cost, deriv,
                  od_first, p_start, p_len, p_flow, p_hash, p_next, pool, counters, mark,
@@ -434,18 +448,11 @@ def _column_pass(new_len, new_at, new_hash, od_demand, x, kind, par, so, cost, d
         n = new_len[od]
         if n < 0 or od_first[od] >= 0:
             continue
-        q = counters[_N_PATHS]
-        counters[_N_PATHS] += 1
-        s = new_at[od]
-        p_start[q] = s
-        p_len[q] = n
-        p_hash[q] = new_hash[od]
-        p_flow[q] = od_demand[od]
-        p_next[q] = -1
-        od_first[od] = q
+        _join_route(od, n, new_at[od], new_hash[od], od_demand[od], od_first, p_start, p_len,
+                    p_flow, p_hash, p_next, counters)
         new_len[od] = -1
         od_excess[od] = 0.0
-        for i in range(s, s + n):
+        for i in range(new_at[od], new_at[od] + n):
             x[pool[i]] += od_demand[od]
         loaded = True
     if loaded:
@@ -463,15 +470,8 @@ def _column_pass(new_len, new_at, new_hash, od_demand, x, kind, par, so, cost, d
                 od_excess[od] = e
                 excess += e
             continue
-        q = counters[_N_PATHS]
-        counters[_N_PATHS] += 1
-        s = new_at[od]
-        p_start[q] = s
-        p_len[q] = n
-        p_hash[q] = new_hash[od]
-        p_flow[q] = 0.0
-        p_next[q] = od_first[od]
-        od_first[od] = q
+        _join_route(od, n, new_at[od], new_hash[od], 0.0, od_first, p_start, p_len, p_flow,
+                    p_hash, p_next, counters)
         e = _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
                          p_flow, p_next, pool, counters, mark, mark2, keep, True, p_cost,
                          max_idle)

@@ -76,7 +76,7 @@ import numba
 import numpy as np
 
 from .costs import CostModel, time_scalar
-from .paths import ShortestPaths
+from .paths import ShortestPaths, iheap_pop, iheap_update
 
 __all__ = ["simulate", "LearningResult", "RULES", "SCHEDULES", "INFORMATION"]
 
@@ -218,52 +218,12 @@ def _od_best(route_value, od_ptr, out_min, out_arg):
         out_arg[r, od] = best
 
 
-@numba.njit(cache=True, inline="always")
-def _sift_up(key, node, pos, i):
-    k = key[i]
-    v = node[i]
-    while i > 0:
-        parent = (i - 1) >> 1
-        if key[parent] > k:
-            key[i] = key[parent]
-            node[i] = node[parent]
-            pos[node[i]] = i
-            i = parent
-        else:
-            break
-    key[i] = k
-    node[i] = v
-    pos[v] = i
-
-
-@numba.njit(cache=True, inline="always")
-def _sift_down(key, node, pos, i, size):
-    k = key[i]
-    v = node[i]
-    while True:
-        child = 2 * i + 1
-        if child >= size:
-            break
-        if child + 1 < size and key[child + 1] < key[child]:
-            child += 1
-        if key[child] < k:
-            key[i] = key[child]
-            node[i] = node[child]
-            pos[node[i]] = i
-            i = child
-        else:
-            break
-    key[i] = k
-    node[i] = v
-    pos[v] = i
-
-
 @numba.njit(cache=True)
 def _origin_sptt(origin, oz, zone_nodes, demand, indptr, adj_head, cost_adj, skip, dist,
                  pos, heap_key, heap_node):
     """``sum_d q_od * dist(o, d)`` for one origin zone ``oz`` at node ``origin``.
 
-    Dijkstra with an indexed binary heap and decrease-key over the adjacency-ordered
+    Dijkstra with the indexed heap of :mod:`congest.paths` over the adjacency-ordered
     costs ``cost_adj``. Nodes with ``skip[v]`` get their distance but are never settled
     (nothing is relaxed from them): centroids that may not be passed through, and nodes
     whose links all lead back to the one node they are entered from (a path through them
@@ -273,36 +233,16 @@ def _origin_sptt(origin, oz, zone_nodes, demand, indptr, adj_head, cost_adj, ski
         dist[i] = np.inf
         pos[i] = -1
     dist[origin] = 0.0
-    heap_key[0] = 0.0
-    heap_node[0] = origin
-    pos[origin] = 0
-    size = 1
+    size = iheap_update(heap_key, heap_node, pos, 0, 0.0, origin)
     while size > 0:
-        u = heap_node[0]
-        d = heap_key[0]
-        size -= 1
-        pos[u] = -2  # settled
-        if size > 0:
-            heap_key[0] = heap_key[size]
-            heap_node[0] = heap_node[size]
-            pos[heap_node[0]] = 0
-            _sift_down(heap_key, heap_node, pos, 0, size)
+        d, u, size = iheap_pop(heap_key, heap_node, pos, size)
         for k in range(indptr[u], indptr[u + 1]):
             v = adj_head[k]
             nd = d + cost_adj[k]
             if nd < dist[v]:
                 dist[v] = nd
-                if skip[v]:
-                    continue
-                if pos[v] == -1:
-                    heap_key[size] = nd
-                    heap_node[size] = v
-                    pos[v] = size
-                    size += 1
-                    _sift_up(heap_key, heap_node, pos, size - 1)
-                else:
-                    heap_key[pos[v]] = nd
-                    _sift_up(heap_key, heap_node, pos, pos[v])
+                if not skip[v]:
+                    size = iheap_update(heap_key, heap_node, pos, size, nd, v)
     total = 0.0
     for dz in range(zone_nodes.size):
         q = demand[oz, dz]
