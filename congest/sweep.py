@@ -570,6 +570,7 @@ class _DaskSweep:
         self.worker_timeout = float(worker_timeout)
         self.pending = {}  # row future -> (chain, position)
         self.suspects = []  # points whose worker died, to rerun alone
+        self.queue = []  # chains not yet handed to the cluster
         self.deaths = {}  # point -> worker deaths while it ran alone
         self._net_future = None
 
@@ -592,11 +593,19 @@ class _DaskSweep:
             previous = out
 
     def run(self, chains):
-        """Run every chain; True if the callback stopped the sweep."""
-        for chain in chains:
-            self.submit(chain, 0)
+        """Run every chain; True if the callback stopped the sweep.
+
+        The dearest chains (highest demand) go first, and the cluster holds no more
+        chains than it has worker threads: Dask places a task on a worker when it is
+        submitted, so chains handed over all at once can leave two heavy ones queued on
+        one worker while the other has finished its share and idles.
+        """
+        self.queue = sorted(chains, key=lambda c: -max(p.demand_scale for p in c))
         try:
-            while self.pending or self.suspects:
+            while self.pending or self.suspects or self.queue:
+                slots = max(self.n_threads(), 1)
+                while self.queue and len({id(c) for c, _ in self.pending.values()}) < slots:
+                    self.submit(self.queue.pop(0), 0)
                 if not self.pending:
                     self.submit([self.suspects.pop(0)], 0)
                 if not self.wait():
@@ -651,6 +660,13 @@ class _DaskSweep:
                 return False
         return True
 
+    def n_threads(self):
+        """Worker threads on the cluster now (0 if the scheduler does not answer)."""
+        try:
+            return sum(self.client.nthreads(callback_timeout=_POLL_SECONDS).values())
+        except (OSError, asyncio.TimeoutError):
+            return 0
+
     def n_workers(self):
         try:
             return len(self.client.nthreads(callback_timeout=_POLL_SECONDS))
@@ -694,9 +710,11 @@ class _DaskSweep:
     def abandon(self, reason):
         """Report every point not yet finished as failed, with ``reason``."""
         points = [chain[pos] for chain, pos in self.pending.values()] + self.suspects
+        points += [point for chain in self.queue for point in chain]
         self.client.cancel(list(self.pending))
         self.pending.clear()
         self.suspects = []
+        self.queue = []
         for point in points:
             self.record.finish(point, None, f"not run: {reason}")
 
