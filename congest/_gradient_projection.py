@@ -954,6 +954,16 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     converged = False
     message = ""
     k = 0
+
+    def jumped(accel, excess):
+        """After a full pass: True if ``accel`` moved the flows (costs then refreshed)."""
+        if accel is None or not accel.after_full_pass(excess):
+            return False
+        _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
+                   pool.links, x)
+        _refresh_costs(x, kind, par, so, cost, deriv)
+        return True
+
     if warm:
         # the earlier routes, rescaled, are rarely in equilibrium at the new costs:
         # re-balance them first, which needs no shortest paths
@@ -980,10 +990,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
                 full = True
             else:
                 full = n_pass % _FULL_EVERY == 0
-            if was_full and accel is not None and accel.after_full_pass(excess):
-                _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow,
-                           pool.next, pool.links, x)
-                _refresh_costs(x, kind, par, so, cost, deriv)
+            if was_full and jumped(accel, excess):
                 full = True
     best_gap = (np.inf, 0)
     ratio = inner_ratio
@@ -1072,10 +1079,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
                 # pairs with little excess of their own still carry flow between the
                 # links that others contend for: visit all with any excess now and then
                 full = n_pass % _FULL_EVERY == 0
-            if was_full and accel is not None and accel.after_full_pass(excess):
-                _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow,
-                           pool.next, pool.links, x)
-                _refresh_costs(x, kind, par, so, cost, deriv)
+            if was_full and jumped(accel, excess):
                 full = True  # the next full pass checks the jump
             if time_limit is not None and time.perf_counter() - start_time > time_limit:
                 break

@@ -70,19 +70,22 @@ _ARITY = 4
 
 
 @numba.njit(cache=True, inline="always")
+def _place(heap_key, heap_node, pos, i, key, node):
+    heap_key[i] = key
+    heap_node[i] = node
+    pos[node] = i
+
+
+@numba.njit(cache=True, inline="always")
 def _sift_up(heap_key, heap_node, pos, i, key, node):
     while i > 0:
         parent = (i - 1) // _ARITY
         if heap_key[parent] > key:
-            heap_key[i] = heap_key[parent]
-            heap_node[i] = heap_node[parent]
-            pos[heap_node[i]] = i
+            _place(heap_key, heap_node, pos, i, heap_key[parent], heap_node[parent])
             i = parent
         else:
             break
-    heap_key[i] = key
-    heap_node[i] = node
-    pos[node] = i
+    _place(heap_key, heap_node, pos, i, key, node)
 
 
 @numba.njit(cache=True, inline="always")
@@ -119,15 +122,11 @@ def iheap_pop(heap_key, heap_node, pos, size):
                     best = j
                     best_key = heap_key[j]
             if best_key < key:
-                heap_key[i] = best_key
-                heap_node[i] = heap_node[best]
-                pos[heap_node[i]] = i
+                _place(heap_key, heap_node, pos, i, best_key, heap_node[best])
                 i = best
             else:
                 break
-        heap_key[i] = key
-        heap_node[i] = node
-        pos[node] = i
+        _place(heap_key, heap_node, pos, i, key, node)
     return key0, node0, size
 
 
