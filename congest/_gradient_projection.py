@@ -767,37 +767,34 @@ class _Accelerator:
     that the next passes remove quickly; a strict test would undo most good jumps.)
     """
 
-    def __init__(self, pool, od_q, od_excess, max_factor=5.0, allow=3.0):
-        self.allow = allow
+    allow = 3.0  # excess after a jump, in times the excess before, that is still kept
+    max_factor = 5.0  # longest jump, in cycles' steps (halved after each undone jump)
+
+    def __init__(self, pool, od_q, od_excess):
         self.pool = pool
         self.od_q = od_q
         self.od_excess = od_excess
-        self.max_factor = max_factor
-        self.reset()
-
-    def reset(self):
-        """Forget the cycle history (after routes were added, moved or compacted)."""
-        self.n = int(self.pool.counters[_N_PATHS])
-        self.snapshot = self.pool.flow[:self.n].copy()
+        # no routes join while an accelerator is in use: ids below n are all there are
+        self.n = int(pool.counters[_N_PATHS])
+        self.snapshot = pool.flow[:self.n].copy()
         self.last_step = None
-        self.saved = None
+        self.saved = None  # the flows before an unchecked jump
 
     def after_full_pass(self, excess):
         """Call after each full pass; returns True when it changed the route flows."""
-        pool = self.pool
+        flow = self.pool.flow
         if self.saved is not None:
-            saved, before = self.saved, self.before
-            self.saved = None
-            if excess > self.allow * before:
-                pool.flow[:self.n] = saved
+            saved, self.saved = self.saved, None
+            if excess > self.allow * self.before:
+                flow[:self.n] = saved
                 self.od_excess[:] = np.inf
                 self.max_factor *= 0.5
-                self.snapshot = saved.copy()
+                self.snapshot = saved
                 self.last_step = None
                 return True
-        step = pool.flow[:self.n] - self.snapshot
+        step = flow[:self.n] - self.snapshot
         last, self.last_step = self.last_step, step
-        self.snapshot = pool.flow[:self.n].copy()
+        self.snapshot = flow[:self.n].copy()
         if last is None or self.max_factor < 0.1:
             return False
         # sums of squares, not dot products: a BLAS call may wake its spinning threads
@@ -805,13 +802,11 @@ class _Accelerator:
         r = float(np.sqrt(np.sum(step * step) / norm_last)) if norm_last > 0.0 else 1.0
         if not r < 0.95:
             return False
-        self.saved = self.snapshot.copy()
+        self.saved = self.snapshot
         self.before = excess
-        grow = np.zeros(pool.flow.size)
-        grow[:self.n] = step
-        _extrapolate(pool.od_first, pool.next, pool.flow, grow, self.od_q,
+        _extrapolate(self.pool.od_first, self.pool.next, flow, step, self.od_q,
                      min(r / (1.0 - r), self.max_factor), self.od_excess)
-        self.snapshot = pool.flow[:self.n].copy()
+        self.snapshot = flow[:self.n].copy()
         self.last_step = None
         return True
 
@@ -955,21 +950,23 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     message = ""
     k = 0
 
+    def load():
+        """Link flows summed from the route flows, and their costs."""
+        _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
+                   pool.links, x)
+        _refresh_costs(x, kind, par, so, cost, deriv)
+
     def jumped(accel, excess):
         """After a full pass: True if ``accel`` moved the flows (costs then refreshed)."""
         if accel is None or not accel.after_full_pass(excess):
             return False
-        _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
-                   pool.links, x)
-        _refresh_costs(x, kind, par, so, cost, deriv)
+        load()
         return True
 
     if warm:
         # the earlier routes, rescaled, are rarely in equilibrium at the new costs:
         # re-balance them first, which needs no shortest paths
-        _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
-                   pool.links, x)
-        _refresh_costs(x, kind, par, so, cost, deriv)
+        load()
         od_excess[:] = np.inf
         first = threshold = -1.0
         full = True
@@ -996,9 +993,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     ratio = inner_ratio
     prev_gap = np.inf
     while True:
-        _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
-                   pool.links, x)
-        _refresh_costs(x, kind, par, so, cost, deriv)
+        load()
         trees(origin_nodes, sp.zone_nodes, sp.indptr, sp.adj_link, sp.adj_head, cost,
                sp.blocked, pred, zdist, n_chunks)
         od_dist = np.take(zdist, od_flat)  # 2-d fancy indexing is far slower

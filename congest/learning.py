@@ -76,7 +76,7 @@ import numba
 import numpy as np
 
 from .costs import CostModel, time_scalar
-from .paths import ShortestPaths, iheap_pop, iheap_update
+from .paths import ShortestPaths, adjacency_costs, iheap_pop, iheap_update
 
 __all__ = ["simulate", "LearningResult", "RULES", "SCHEDULES", "INFORMATION"]
 
@@ -269,8 +269,7 @@ def _sptt_items(first, stride, cost, origins, zone_nodes, demand, indptr, adj_li
         r = item // n_orig
         i = item - r * n_orig
         if r != last_r:
-            for k in range(adj_link.size):
-                cost_adj[k] = cost[r, adj_link[k]]
+            adjacency_costs(cost[r], adj_link, cost_adj)
             last_r = r
         oz = origins[i]
         part[r, i] = _origin_sptt(zone_nodes[oz], oz, zone_nodes, demand, indptr, adj_head,

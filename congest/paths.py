@@ -2,8 +2,8 @@
 
 This is the hot loop of every solver. One Dijkstra tree per origin zone (indexed 4-ary
 heap with decrease-key, link costs in forward-star order), computed in parallel over
-origins; the demand of each origin is loaded
-onto its tree by a single backward sweep over the nodes in the order they were settled.
+origins; the demand of each origin is loaded onto its tree by a single backward sweep
+over the nodes in the order they were settled.
 
 The centroid rule: when ``Network.through_centroids`` is False, a path may start or end
 at a zone centroid but never pass through one, so links leaving a centroid are relaxed
