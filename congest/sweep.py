@@ -652,7 +652,7 @@ class _DaskSweep:
                 continue  # reported with the point
             except asyncio.TimeoutError:  # TimeoutError from Python 3.11 on
                 pass
-            if self.n_workers():
+            if self.n_threads():
                 since = None
             elif since is None:
                 since = time.monotonic()
@@ -661,17 +661,12 @@ class _DaskSweep:
         return True
 
     def n_threads(self):
-        """Worker threads on the cluster now (0 if the scheduler does not answer)."""
+        """Worker threads on the cluster now (0 without workers, or if the scheduler
+        does not answer: then no worker can be reached either)."""
         try:
             return sum(self.client.nthreads(callback_timeout=_POLL_SECONDS).values())
         except (OSError, asyncio.TimeoutError):
             return 0
-
-    def n_workers(self):
-        try:
-            return len(self.client.nthreads(callback_timeout=_POLL_SECONDS))
-        except (OSError, asyncio.TimeoutError):
-            return 0  # the scheduler does not answer: no worker can be reached either
 
     def settle(self, fut):
         """Record one ready row future; True if the callback asks to stop."""
