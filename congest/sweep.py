@@ -508,7 +508,7 @@ def _dask_client(scheduler, n_workers, processes, retries):
     }
     with dask.config.set(config), LocalCluster(
             n_workers=n, threads_per_worker=1, processes=processes,
-            dashboard_address=None, silence_logs=40) as cluster, Client(cluster) as client:
+            dashboard_address=":0", silence_logs=40) as cluster, Client(cluster) as client:
         yield client
 
 

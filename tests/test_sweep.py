@@ -252,7 +252,7 @@ def _dying_cluster(folder, threads=1):
               "distributed.deploy.lost-worker-timeout": "30 days"}
     with dask.config.set(config), LocalCluster(
             n_workers=1, threads_per_worker=threads, processes=True,
-            dashboard_address=None, silence_logs=50,
+            dashboard_address=":0", silence_logs=50,
             preload=[str(preload)]) as cluster, Client(cluster) as client:
         yield client
 
@@ -327,7 +327,7 @@ def test_cluster_without_workers_reports_the_points():
     # a cluster whose workers are gone for good: the points are reported, not awaited
     from distributed import Client, LocalCluster
 
-    with LocalCluster(n_workers=0, processes=False, dashboard_address=None,
+    with LocalCluster(n_workers=0, processes=False, dashboard_address=":0",
                       silence_logs=50) as cluster, Client(cluster) as client:
         res = sweep(pigou(), [0.5, 1.0], scheduler=client, worker_timeout=1.0)
     assert res.table.empty

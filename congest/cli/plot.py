@@ -199,7 +199,8 @@ def _table_figure(kind, path, *, currency, title, shares):
               show_default=True, help="Target relative gap of solves made here.")
 @click.option("--method", default="auto", show_default=True, help="Equilibrium method.")
 @click.option("--link", "links", multiple=True, type=int, metavar="LINK_ID",
-              help="select-link: link id(s) whose trips to map.")
+              help="select-link: id of a link whose trips to map; repeat the option for "
+                   "several (--link 157 --link 158).")
 @click.option("--methods", default="fw,bfw,gp", show_default=True,
               help="convergence: comma-separated methods to compare.")
 @click.option("--currency", default=None, help="sweep: currency label of the revenue.")

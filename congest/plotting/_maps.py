@@ -687,9 +687,12 @@ def select_link_map(network, select_flow, selected, *, label=None, figsize=(10.0
         ids = ", ".join(str(v) for v in net.link_ids[sel][:6])
         label = (f"trips using link {ids}{_link_name(net, sel[0])}" if sel.size == 1
                  else f"trips using links {ids}{' ...' if sel.size > 6 else ''}")
-    total = float(volume[sel].max())
+    on_selected = volume[sel]
+    volume_note = (f"{float(on_selected[0]):,.0f} vehicles on the selected link"
+                   if sel.size == 1 else
+                   f"{float(on_selected.min()):,.0f} to {float(on_selected.max()):,.0f} "
+                   "vehicles on the selected links")
     frame.titles(f"{net.name}: {label}",
-                 f"{total:,.0f} vehicles on the selected link(s)  ·  "
-                 f"{int(used.sum())} links carry some of them")
+                 f"{volume_note}  ·  {int(used.sum())} links carry some of them")
     frame.footnote()
     return frame.fig

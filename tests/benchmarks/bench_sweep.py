@@ -61,7 +61,7 @@ def main():
 
     t0 = time.perf_counter()
     cluster = LocalCluster(n_workers=cores, threads_per_worker=1, processes=True,
-                           dashboard_address=None, silence_logs=40)
+                           dashboard_address=":0", silence_logs=40)
     client = Client(cluster)
     t_start = time.perf_counter() - t0
     warm = client.gather([client.submit(_warm_up, pure=False, workers=[w])
