@@ -173,7 +173,7 @@ def build(peak_trips=PEAK_TRIPS, seed=SEED) -> Network:
         alpha=alpha, beta=4.0, length=length, x=x, y=y,
         zone_ids=zone_ids, zone_nodes=[index[z] for z in zone_ids], demand=demand,
         through_centroids=False, period_hours=1.0, value_of_time=18.0, currency="crowns",
-        length_unit="km", crs="local metric grid of the fictional city, metres "
+        length_unit="km", crs="a local metric grid of the fictional city, metres "
         "(origin at the Old Bridge, x east, y north)", name=NAME,
         link_attrs={"facility_type": np.array([k for _, _, k, _, _ in links], dtype=object),
                     "name": np.array([nm for _, _, _, nm, _ in links], dtype=object),
