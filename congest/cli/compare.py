@@ -9,6 +9,7 @@ from pathlib import Path
 import click
 
 from ._common import (
+    _slug,
     check_paths,
     friendly_errors,
     load_network,
@@ -38,13 +39,8 @@ SHOWN = (
     ("ratio_to_so", "vs SO", "{:.4f}"),
     ("max_volume_capacity", "max v/c", "{:.2f}"),
     ("links_over_capacity", "over cap", "{:d}"),
-    ("wardrop_gap", "UE gap", "{:.1e}"),
+    ("wardrop_gap", "Wardrop gap", "{:.1e}"),
 )
-
-
-def _slug(text):
-    out = "".join(ch if ch.isalnum() else "-" for ch in str(text).lower()).strip("-")
-    return out or "network"
 
 
 def _clean(value):
@@ -201,6 +197,8 @@ def command(network, advice_share, plans, out_dir, gap, method, max_iter, days, 
     ra = cmp.results["reactive_advice"]
     cycle = f"a {ra.cycle}-day cycle" if ra.cycle else "no repeating cycle"
     lines = [
+        "Wardrop gap: relative gap of each scenario's flows to user equilibrium (0: no "
+        "driver can save by switching routes; SO and advice flows are not meant to be 0)",
         f"price of anarchy {fb.price_of_anarchy:.4f} (at most {fb.price_of_anarchy_upper:.4f} "
         f"given the SO gap); gaps: UE {fb.ue.relative_gap:.1e}, SO {fb.so.relative_gap:.1e}, "
         f"tolled UE {fb.tolled_ue.relative_gap:.1e}",

@@ -8,6 +8,7 @@ from pathlib import Path
 import click
 
 from ._common import (
+    _slug,
     check_paths,
     friendly_errors,
     load_network,
@@ -17,11 +18,6 @@ from ._common import (
 from .compare import default_gap
 
 __all__ = ["command", "parse_groups", "parse_classes"]
-
-
-def _slug(text):
-    out = "".join(ch if ch.isalnum() else "-" for ch in str(text).lower()).strip("-")
-    return out or "network"
 
 
 def parse_groups(net, on_links, on_attribute):
