@@ -58,6 +58,7 @@ References
 from __future__ import annotations
 
 import time
+import types
 from dataclasses import dataclass
 
 import numba
@@ -159,9 +160,27 @@ def _trees_impl(origin_nodes, zone_nodes, indptr, adj_link, adj_head, cost, bloc
                 zdist[j, z] = dist[zone_nodes[z]]
 
 
+def _twins(impl):
+    """A parallel and a serial compiled version of ``impl``, each with its own cache.
+
+    numba names its cache files after the function and keys the entries by argument
+    types only; two dispatchers of one function would share the file, and the one
+    compiled first would be loaded for both (the parallel version then ran on one
+    thread). Each twin is therefore compiled from a renamed copy of the function.
+    """
+    out = []
+    for suffix, parallel in (("parallel", True), ("serial", False)):
+        name = impl.__name__.replace("_impl", "_" + suffix)
+        fn = types.FunctionType(impl.__code__, impl.__globals__, name, impl.__defaults__,
+                                impl.__closure__)
+        fn.__qualname__ = name
+        fn.__doc__ = impl.__doc__
+        out.append(numba.njit(cache=True, parallel=parallel)(fn))
+    return tuple(out)
+
+
 # Parallel regions cost a thread hand-over each; small networks run the serial twin.
-_trees_parallel = numba.njit(cache=True, parallel=True)(_trees_impl)
-_trees_serial = numba.njit(cache=True)(_trees_impl)
+_trees_parallel, _trees_serial = _twins(_trees_impl)
 _PARALLEL_WORK = 200_000  # origins x links above which the trees run in parallel
 
 
@@ -414,10 +433,8 @@ def _write_routes_impl(new_len, new_at, od_row, od_dnode, tail, pred, pool, n_ch
 
 
 # A pass over a million OD pairs is worth two threads; small networks run the serial twin.
-_find_routes_parallel = numba.njit(cache=True, parallel=True)(_find_routes_impl)
-_find_routes_serial = numba.njit(cache=True)(_find_routes_impl)
-_write_routes_parallel = numba.njit(cache=True, parallel=True)(_write_routes_impl)
-_write_routes_serial = numba.njit(cache=True)(_write_routes_impl)
+_find_routes_parallel, _find_routes_serial = _twins(_find_routes_impl)
+_write_routes_parallel, _write_routes_serial = _twins(_write_routes_impl)
 
 
 @numba.njit(cache=True, inline="always")
@@ -908,7 +925,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     od_row = od_row.astype(np.int64)
     origin_nodes = sp.zone_nodes[origins]
     od_dnode = sp.zone_nodes[od_d]
-    kind = model.kind
+    kind = np.array(model.kind)  # writeable: read-only arguments get slower kernels
     par = np.ascontiguousarray(np.column_stack([model.t0, model.alpha, model.beta,
                                                 model.capacity, model.constant,
                                                 model.preload]))

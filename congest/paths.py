@@ -264,12 +264,14 @@ class ShortestPaths:
         counts = np.bincount(network.tail, minlength=n)
         self.indptr = np.zeros(n + 1, dtype=np.int64)
         np.cumsum(counts, out=self.indptr[1:])
-        self.tail = np.ascontiguousarray(network.tail, dtype=np.int64)
-        self.head = np.ascontiguousarray(network.head, dtype=np.int64)
+        # own, writeable copies: the network's arrays are read-only, and numba compiles
+        # a separate, much slower parallel specialization for read-only arguments
+        self.tail = np.array(network.tail, dtype=np.int64)
+        self.head = np.array(network.head, dtype=np.int64)
         self.blocked = np.zeros(n, dtype=np.uint8)
         if not network.through_centroids:
             self.blocked[network.zone_nodes] = 1
-        self.zone_nodes = np.ascontiguousarray(network.zone_nodes, dtype=np.int64)
+        self.zone_nodes = np.array(network.zone_nodes, dtype=np.int64)
         self.origins = np.flatnonzero(network.demand.sum(axis=1) > 0).astype(np.int64)
 
     def all_or_nothing(self, cost, demand=None):
