@@ -925,7 +925,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     od_row = od_row.astype(np.int64)
     origin_nodes = sp.zone_nodes[origins]
     od_dnode = sp.zone_nodes[od_d]
-    kind = np.array(model.kind)  # writeable: read-only arguments get slower kernels
+    kind = np.array(model.kind)  # writeable, as elsewhere: one compiled version per kernel
     par = np.ascontiguousarray(np.column_stack([model.t0, model.alpha, model.beta,
                                                 model.capacity, model.constant,
                                                 model.preload]))

@@ -265,7 +265,7 @@ class ShortestPaths:
         self.indptr = np.zeros(n + 1, dtype=np.int64)
         np.cumsum(counts, out=self.indptr[1:])
         # own, writeable copies: the network's arrays are read-only, and numba compiles
-        # a separate, much slower parallel specialization for read-only arguments
+        # every kernel once more for read-only array arguments
         self.tail = np.array(network.tail, dtype=np.int64)
         self.head = np.array(network.head, dtype=np.int64)
         self.blocked = np.zeros(n, dtype=np.uint8)

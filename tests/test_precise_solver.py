@@ -374,3 +374,34 @@ def test_bad_options():
         solve(net, method="gp", inner_ratio=-1.0)
     with pytest.raises(SolverError):
         solve(net, method="gp", max_iter=0)
+
+
+def test_parallel_and_serial_twins_compile_apart():
+    """The parallel and serial versions of a kernel must not share compiled code.
+
+    numba names a cache file after the Python function and keys its entries by argument
+    types, so two dispatchers of one function shared a file and the one compiled first
+    was loaded for both (the "parallel" trees then ran on one thread). Each twin is
+    compiled from its own renamed copy; both must still give the same trees.
+    """
+    import congest._gradient_projection as gpm
+    from congest.equilibrium import Problem
+
+    pairs = [(gpm._trees_parallel, gpm._trees_serial),
+             (gpm._find_routes_parallel, gpm._find_routes_serial),
+             (gpm._write_routes_parallel, gpm._write_routes_serial)]
+    for par, ser in pairs:
+        assert par.py_func.__qualname__ != ser.py_func.__qualname__
+        assert par.targetoptions.get("parallel") and not ser.targetoptions.get("parallel")
+    net = load_reference("siouxfalls")
+    sp = Problem(net, "ue").paths
+    cost = np.asarray(net.free_flow_time, dtype=np.float64) + 0.5
+    out = []
+    for trees in (gpm._trees_parallel, gpm._trees_serial):
+        pred = np.empty((sp.zone_nodes.size, net.n_nodes), dtype=np.int32)
+        zdist = np.empty((sp.zone_nodes.size, net.n_zones))
+        trees(sp.zone_nodes, sp.zone_nodes, sp.indptr, sp.adj_link, sp.adj_head, cost,
+              sp.blocked, pred, zdist, 2)
+        out.append((pred, zdist))
+    np.testing.assert_array_equal(out[0][0], out[1][0])
+    np.testing.assert_array_equal(out[0][1], out[1][1])
