@@ -47,6 +47,7 @@ from .exceptions import ConvergenceWarning, NetworkError, SolverError
 
 __all__ = [
     "system_cost",
+    "tolled_mask",
     "price_of_anarchy",
     "marginal_cost_tolls",
     "minutes_to_money",
@@ -67,6 +68,21 @@ SECOND_BEST_METHODS = ("auto", "bounded", "powell", "nelder-mead", "l-bfgs-b", "
 
 #: Tolls below this many minutes count as "no toll" when listing tolled links.
 TOLL_EPS_MIN = 1e-9
+#: Tolls below this share of the largest also count as "no toll": a marginal-cost toll
+#: on a link that carries almost no SO volume is a rounding-level amount.
+TOLL_RELATIVE_FLOOR = 1e-4
+
+
+def tolled_mask(tolls):
+    """Links whose toll counts as a toll: above ``TOLL_RELATIVE_FLOOR`` times the
+    largest toll and above ``TOLL_EPS_MIN``.
+
+    The one definition behind every count of tolled links (summaries, reports, the toll
+    map and the ``tolled`` column of the toll table).
+    """
+    t = np.asarray(tolls, dtype=np.float64)
+    top = float(t.max()) if t.size else 0.0
+    return t > max(TOLL_RELATIVE_FLOOR * top, TOLL_EPS_MIN)
 
 
 def minutes_to_money(minutes, value_of_time):
@@ -356,7 +372,7 @@ def first_best(net, *, tol=1e-8, method="auto", max_iter=None, ue=None, so=None,
         tolls_minutes=_frozen(tolls), tolls_money=_frozen(minutes_to_money(tolls, vot)),
         value_of_time=vot, currency=net.currency,
         revenue_minutes=revenue_min, revenue_money=revenue_money,
-        tolled_links=_frozen(net.link_ids[tolls > TOLL_EPS_MIN]),
+        tolled_links=_frozen(net.link_ids[tolled_mask(tolls)]),
         mean_toll_per_trip=revenue_money / total if total else 0.0,
         max_flow_deviation=float(np.max(np.abs(tolled.flow - so.flow), initial=0.0)),
         price_of_anarchy=price_of_anarchy(ue, so),

@@ -19,6 +19,7 @@ from congest.pricing import (
     minutes_to_money,
     price_of_anarchy,
     system_cost,
+    tolled_mask,
 )
 
 #: Methods that reach tight gaps (the shared first-best checks run for each).
@@ -169,3 +170,23 @@ def test_tolled_ue_equals_so_random(method, seed):
     assert fb.system_cost_tolled == pytest.approx(fb.system_cost_so, rel=10 * gap)
     # SO total never above UE (Wardrop 1952; definitions)
     assert fb.system_cost_so <= fb.system_cost_ue * (1 + 1e-9)
+
+
+def test_one_definition_of_a_tolled_link():
+    """Summary, table and map count the same links (common practice: a charge of a
+    ten-thousandth of the largest toll is rounding, not a toll)."""
+    assert tolled_mask([0.0, 1e-6, 2e-4, 1.0]).tolist() == [False, False, True, True]
+    assert tolled_mask([0.0, 0.0]).tolist() == [False, False]
+    assert tolled_mask(np.zeros(0)).size == 0
+    from congest.generate import grid_network
+
+    net = grid_network(6, 6, seed=3)
+    fb = first_best(net, tol=1e-10)
+    mask = tolled_mask(fb.tolls_minutes)
+    assert fb.tolled_links.tolist() == net.link_ids[mask].tolist()
+    from congest.plotting import MAP_LAYERS, toll_map
+
+    fig = toll_map(net, fb.tolls_money)
+    drawn = [c for ax in fig.axes for c in ax.collections
+             if c.get_gid() == MAP_LAYERS["links"]]
+    assert len(drawn[0].get_segments()) == int(mask.sum())

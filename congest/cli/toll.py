@@ -135,7 +135,7 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, clas
 
     from ..exceptions import InputError
     from ..io.atomic import atomic_write
-    from ..pricing import first_best, second_best
+    from ..pricing import TOLL_RELATIVE_FLOOR, first_best, second_best, tolled_mask
 
     gap = default_gap(method) if gap is None else gap
     net, layout = load_network(network, **net_opts)
@@ -156,10 +156,12 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, clas
         link_money = fb.tolls_money
         frame = pd.DataFrame({**ends, "so_flow": fb.so.flow,
                               "toll_min": fb.tolls_minutes, "toll_money": fb.tolls_money,
+                              "tolled": tolled_mask(fb.tolls_minutes),
                               "tolled_flow": fb.tolled_ue.flow, "ue_flow": fb.ue.flow})
         lines = [
             f"first-best tolls on {fb.tolled_links.size} of {net.n_links} links "
-            f"(value of time {net.value_of_time:g} {cur}/h)",
+            f"(value of time {net.value_of_time:g} {cur}/h; tolls under "
+            f"{TOLL_RELATIVE_FLOOR:g} of the largest count as none)",
             f"vehicle-hours: UE {fb.ue.vehicle_hours:,.1f}, SO {fb.so.vehicle_hours:,.1f}, "
             f"tolled {fb.tolled_ue.vehicle_hours:,.1f}",
             f"price of anarchy {fb.price_of_anarchy:.4f}; tolled flows within "

@@ -558,10 +558,12 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     amount = _as_flow(net, net.toll if toll is None else toll, "toll")
     currency = net.currency if currency is None else currency
     volume = None if flow is None else _as_flow(net, flow, "flow")
+    from ..pricing import TOLL_RELATIVE_FLOOR, tolled_mask
+
     # tolls below 1e-4 of the largest (rounding noise where an SO flow is near zero)
-    # are drawn as untolled and counted in the footnote
+    # are drawn as untolled and counted in the footnote, as in every count of tolled links
     top_toll = float(np.max(np.abs(amount))) if amount.size else 0.0
-    tolled = amount > max(1e-4 * top_toll, 1e-12)
+    tolled = tolled_mask(amount)
     tiny = int(np.sum((amount > 0) & ~tolled))
     frame = _Frame(net, figsize=figsize)
     hair = np.full(net.n_links, _HAIRLINE * 2)
@@ -604,7 +606,8 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     else:
         sub = "no tolled links"
     frame.titles(f"{net.name}: {scenario}", sub)
-    frame.footnote(f"{tiny:,} link(s) with tolls below {1e-4 * top_toll:.2g} {currency} "
+    frame.footnote(f"{tiny:,} link(s) with tolls below {TOLL_RELATIVE_FLOOR * top_toll:.2g} "
+                   f"{currency} "
                    "drawn as untolled." if tiny else "")
     return frame.fig
 
