@@ -196,7 +196,7 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
                             "warm colours gain traffic, cool colours lose it."))
         advice = cmp.links.get("free_flow_advice")
         if advice is not None:
-            flow = advice["flow"].to_numpy(float)
+            flow = advice["volume"].to_numpy(float)
             charts.append(Chart(
                 "flow-free-flow-advice",
                 plotting.flow_map(net, flow, scenario="free-flow advice to all",
@@ -217,7 +217,7 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
             charts.append(Chart(
                 key.replace("_", "-"),
                 plotting.toll_map(net, links["toll_money"].to_numpy(float),
-                                  flow=links["flow"].to_numpy(float), scenario=label),
+                                  flow=links["volume"].to_numpy(float), scenario=label),
                 f"Toll plan: {label}",
                 f"The plan's tolls in {net.currency} per vehicle, with the volumes on the "
                 "tolled links under user equilibrium."))
@@ -461,7 +461,7 @@ def write_report(report, folder, *, image_format="png", embed=True, dpi=150) -> 
     if report.has_coordinates:
         props = {}
         for key, links in cmp.links.items():
-            props[f"volume_{key}"] = links["flow"].to_numpy(float)
+            props[f"volume_{key}"] = links["volume"].to_numpy(float)
             props[f"volume_capacity_{key}"] = links["volume_capacity"].to_numpy(float)
             if (links["toll_money"] != 0).any():
                 props[f"toll_{key}"] = links["toll_money"].to_numpy(float)

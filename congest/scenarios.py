@@ -55,7 +55,7 @@ TABLE_COLUMNS = (
 )
 
 #: Columns of each frame in :attr:`ScenarioComparison.links`, in order.
-LINK_COLUMNS = ("link_id", "from_node", "to_node", "flow", "time_min", "cost_min",
+LINK_COLUMNS = ("link_id", "from_node", "to_node", "volume", "travel_time", "cost",
                 "toll_money", "volume_capacity")
 
 
@@ -73,10 +73,11 @@ class ScenarioComparison:
         :data:`TABLE_COLUMNS`. ``table.attrs`` holds ``currency``, ``length_unit``,
         ``value_of_time`` and ``advice_share``.
     links : dict of str to pandas.DataFrame
-        Link results per scenario key, columns :data:`LINK_COLUMNS`: ``flow``
-        (vehicles), ``time_min`` (travel time), ``cost_min`` (generalized cost the
-        drivers see, added tolls included), ``toll_money`` (added toll),
-        ``volume_capacity``.
+        Link results per scenario key, columns :data:`LINK_COLUMNS`, named as in
+        :func:`congest.io.link_results`: ``volume`` (vehicles in the period),
+        ``travel_time`` (minutes), ``cost`` (generalized cost the drivers see, added
+        tolls included, minutes), ``toll_money`` (added toll, in the network's
+        currency), ``volume_capacity``.
     results : dict of str to object
         The underlying results: ``first_best`` (:class:`~congest.pricing.FirstBest`),
         ``free_flow_advice`` (Equilibrium), ``reactive_advice``
@@ -99,9 +100,9 @@ def _link_frame(net, flow, time, added_toll_minutes, added_toll_money):
         "link_id": net.link_ids,
         "from_node": net.node_ids[net.tail],
         "to_node": net.node_ids[net.head],
-        "flow": np.asarray(flow, dtype=np.float64),
-        "time_min": np.asarray(time, dtype=np.float64),
-        "cost_min": np.asarray(time, dtype=np.float64) + net.constant_cost + added_toll_minutes,
+        "volume": np.asarray(flow, dtype=np.float64),
+        "travel_time": np.asarray(time, dtype=np.float64),
+        "cost": np.asarray(time, dtype=np.float64) + net.constant_cost + added_toll_minutes,
         "toll_money": np.broadcast_to(added_toll_money, flow.shape).astype(np.float64),
         "volume_capacity": vc,
     }, columns=list(LINK_COLUMNS))
@@ -109,7 +110,7 @@ def _link_frame(net, flow, time, added_toll_minutes, added_toll_money):
 
 def _row(net, label, links, *, vehicle_hours, system_cost_min, revenue, solver_gap,
          wardrop_gap, vehicle_distance=None):
-    flow = links["flow"].to_numpy()
+    flow = links["volume"].to_numpy()
     vc = links["volume_capacity"].to_numpy()
     total = net.total_demand
     if vehicle_distance is None:

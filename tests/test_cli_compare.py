@@ -68,8 +68,9 @@ def test_compare_writes_table_and_links(two_routes, tmp_path):
     assert data["reactive_advice"]["cycle_days"] == 2
     assert data["first_best"]["price_of_anarchy"] == pytest.approx(6 / so, rel=1e-8)
     links = pd.read_csv(out / "links" / "marginal_cost_tolls.csv")
-    assert list(links.columns) == ["link_id", "from_node", "to_node", "flow", "time_min",
-                                   "cost_min", "toll_money", "volume_capacity"]
+    assert list(links.columns) == ["link_id", "from_node", "to_node", "volume",
+                                   "travel_time", "cost", "toll_money",
+                                   "volume_capacity"]
     assert_allclose(links["toll_money"], [7 / 6, 5 / 3], atol=1e-6)
     assert sorted(p.name for p in (out / "links").iterdir()) == sorted(
         f"{k}.csv" for k in table.index)
@@ -103,8 +104,8 @@ def test_toll_first_best(two_routes, tmp_path):
     # x t'(x) at SO (Beckmann, McGuire & Winsten 1956; by hand)
     assert_allclose(frame["toll_min"], [7 / 6, 5 / 3], atol=1e-6)
     assert_allclose(frame["toll_money"], frame["toll_min"])
-    assert_allclose(frame["tolled_flow"], frame["so_flow"], atol=1e-6)
-    assert_allclose(frame["ue_flow"], [1.0, 1.0], atol=1e-6)
+    assert_allclose(frame["tolled_volume"], frame["so_volume"], atol=1e-6)
+    assert_allclose(frame["ue_volume"], [1.0, 1.0], atol=1e-6)
 
 
 @pytest.mark.parametrize("how", [["--on", "2"], ["--on-attribute", "facility_type=bridge"]])
@@ -118,7 +119,7 @@ def test_toll_second_best_on_the_bridge(two_routes, tmp_path, how):
     frame = pd.read_csv(out)
     assert frame["link_id"].tolist() == [2]
     assert frame["toll_money"].iloc[0] == pytest.approx(0.5, abs=1e-3)
-    assert frame["tolled_flow"].iloc[0] == pytest.approx(5 / 6, abs=1e-3)
+    assert frame["tolled_volume"].iloc[0] == pytest.approx(5 / 6, abs=1e-3)
 
 
 @pytest.mark.parametrize("args, words", [

@@ -107,7 +107,7 @@ def test_table_and_geojson_match_the_comparison(report, embedded):
                                report.comparison.table["vehicle_hours"], rtol=1e-12)
     links = read_link_geojson(tmp_path / "links.geojson")
     for key, frame in report.comparison.links.items():
-        np.testing.assert_array_equal(links[f"volume_{key}"], frame["flow"])
+        np.testing.assert_array_equal(links[f"volume_{key}"], frame["volume"])
     data = json.loads((tmp_path / "links.geojson").read_text())
     assert "coordinate_note" in data  # generated towns are on a local plane
     # the summary's key figure is the comparison's price of anarchy

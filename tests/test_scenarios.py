@@ -77,11 +77,11 @@ def test_compare_two_routes():
     for frame in links.values():
         assert list(frame.columns) == list(LINK_COLUMNS)
     mc = links["marginal_cost_tolls"]
-    assert_allclose(mc["flow"], [7 / 6, 5 / 6], atol=1e-6)
+    assert_allclose(mc["volume"], [7 / 6, 5 / 6], atol=1e-6)
     assert_allclose(mc["toll_money"], [7 / 6, 5 / 3], atol=1e-6)
     # drivers' cost includes the toll: 2 + 7/6 + 7/6 on route 1
-    assert mc["cost_min"].iloc[0] == pytest.approx(2 + 7 / 3, abs=1e-6)
-    assert_allclose(links["reactive_advice"]["flow"], [1.0, 1.0])
+    assert mc["cost"].iloc[0] == pytest.approx(2 + 7 / 3, abs=1e-6)
+    assert_allclose(links["reactive_advice"]["volume"], [1.0, 1.0])
     assert cmp.results["first_best"].price_of_anarchy == pytest.approx(6.0 / so, rel=1e-8)
 
 

@@ -154,10 +154,10 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, clas
             "to_node": net.node_ids[net.head]}
     if not groups:
         link_money = fb.tolls_money
-        frame = pd.DataFrame({**ends, "so_flow": fb.so.flow,
+        frame = pd.DataFrame({**ends, "so_volume": fb.so.flow,
                               "toll_min": fb.tolls_minutes, "toll_money": fb.tolls_money,
                               "tolled": tolled_mask(fb.tolls_minutes),
-                              "tolled_flow": fb.tolled_ue.flow, "ue_flow": fb.ue.flow})
+                              "tolled_volume": fb.tolled_ue.flow, "ue_volume": fb.ue.flow})
         lines = [
             f"first-best tolls on {fb.tolled_links.size} of {net.n_links} links "
             f"(value of time {net.value_of_time:g} {cur}/h; tolls under "
@@ -183,8 +183,8 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, clas
                              "from_node": int(net.node_ids[net.tail[i]]),
                              "to_node": int(net.node_ids[net.head[i]]),
                              "toll_min": float(minutes), "toll_money": float(money),
-                             "ue_flow": float(fb.ue.flow[i]),
-                             "tolled_flow": float(sb.tolled_ue.flow[i]),
+                             "ue_volume": float(fb.ue.flow[i]),
+                             "tolled_volume": float(sb.tolled_ue.flow[i]),
                              "first_best_toll_money": float(fb.tolls_money[i])})
         frame = pd.DataFrame(rows)
         link_money = sb.link_tolls_minutes * (net.value_of_time / 60.0)
