@@ -184,23 +184,36 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
     charts = []
     has_xy = bool(np.isfinite(net.x).all() and np.isfinite(net.y).all())
     if has_xy:
-        charts.append(Chart("flow-ue", plotting.flow_map(net, ue), "User equilibrium",
+        # one width and one colour scale for all flow maps, so that they compare by eye
+        advice = cmp.links.get("free_flow_advice")
+        volumes = [ue.flow, so.flow] + ([advice["volume"].to_numpy(float)]
+                                        if advice is not None else [])
+        cap = net.period_capacity
+        with np.errstate(divide="ignore", invalid="ignore"):
+            top_vc = max(float(np.max(np.where(cap > 0, v / cap, 0.0), initial=0.0))
+                         for v in volumes)
+        scales = {"vc_max": float(np.clip(np.ceil(top_vc * 4.0 - 1e-9) / 4.0, 1.0, 2.0))}
+        top_volume = max(float(np.max(v, initial=0.0)) for v in volumes)
+        if top_volume > 0:
+            scales["volume_max"] = top_volume
+        charts.append(Chart("flow-ue", plotting.flow_map(net, ue, **scales),
+                            "User equilibrium",
                             "Every driver takes a quickest route. Width shows volume, colour "
-                            "volume over capacity."))
-        charts.append(Chart("flow-so", plotting.flow_map(net, so), "System optimum",
+                            "volume over capacity; all flow maps here share both scales."))
+        charts.append(Chart("flow-so", plotting.flow_map(net, so, **scales), "System optimum",
                             "Routes that make total travel time least."))
         charts.append(Chart("difference-ue-so",
                             plotting.difference_map(net, ue, so, labels=("UE", "SO")),
                             "What the system optimum moves",
                             "Change in volume from user equilibrium to system optimum: "
                             "warm colours gain traffic, cool colours lose it."))
-        advice = cmp.links.get("free_flow_advice")
         if advice is not None:
             flow = advice["volume"].to_numpy(float)
             charts.append(Chart(
                 "flow-free-flow-advice",
                 plotting.flow_map(net, flow, scenario="free-flow advice to all",
-                                  key_figure=_row_key_figure(table, "free_flow_advice", net)),
+                                  key_figure=_row_key_figure(table, "free_flow_advice", net),
+                                  **scales),
                 "Advice to all on free-flow routes",
                 "A routing service tells every driver the fastest route on empty roads; "
                 "volumes and volume/capacity at the times that advice causes."))

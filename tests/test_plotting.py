@@ -140,6 +140,24 @@ def test_flow_map_widths_ordered_like_volumes(net):
     np.testing.assert_allclose(slope[flow > 0], slope[flow > 0][0], rtol=1e-9)
 
 
+def test_flow_maps_with_a_shared_volume_scale_draw_equal_volumes_equally(net):
+    big = np.linspace(0, 900, net.n_links)
+    small = big / 3.0
+    shared = dict(volume_max=900.0, vc_max=1.0)
+    w_big = np.asarray(layer(flow_map(net, big, **shared), "links").get_linewidths())
+    w_small = np.asarray(layer(flow_map(net, small, **shared), "links").get_linewidths())
+    # a link with 300 vehicles is as wide on both maps
+    i = int(np.argmin(np.abs(big - 300.0)))
+    j = int(np.argmin(np.abs(small - big[i])))
+    np.testing.assert_allclose(w_big[i], w_small[j], rtol=1e-2)
+    # each map scaled to its own maximum would draw the smaller volumes as wide
+    w_own = np.asarray(layer(flow_map(net, small), "links").get_linewidths())
+    assert w_own.max() == pytest.approx(w_big.max())
+    assert w_small.max() < 0.5 * w_big.max()
+    with pytest.raises(ValueError, match="volume_max"):
+        flow_map(net, big, volume_max=0.0)
+
+
 def test_flow_map_colours_are_the_colour_map_of_volume_capacity(net):
     flow = np.linspace(0, 1.3, net.n_links) * net.period_capacity
     fig = flow_map(net, flow)

@@ -376,7 +376,7 @@ def _period(net):
 
 # ------------------------------------------------------------------- maps
 def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
-             show_zones=True, figsize=(10.0, 8.0)):
+             volume_max=None, show_zones=True, figsize=(10.0, 8.0)):
     """Map of link volumes: width by volume, colour by volume/capacity.
 
     Parameters
@@ -396,6 +396,10 @@ def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
         Top of the colour scale. Default: the largest volume/capacity rounded up to a
         quarter, at least 1 and at most 2; links above it take the top colour and the
         colour bar shows an arrow.
+    volume_max : float, optional
+        Volume drawn at full width. Default: the largest volume on this map. Maps meant
+        to be compared side by side (UE against SO, say) need the same ``volume_max``
+        and ``vc_max``, or equal widths stand for different volumes.
     show_zones : bool, default True
     figsize : (float, float), default (10, 8)
         Inches.
@@ -440,7 +444,11 @@ def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
 
     frame = _Frame(net, figsize=figsize)
     vref = float(np.max(volume)) if volume.size else 0.0
-    widths = frame.widths(volume, vref)
+    if volume_max is not None:
+        if not (volume_max > 0) or not math.isfinite(volume_max):
+            raise ValueError(f"volume_max must be a positive number, got {volume_max!r}")
+        vref = float(volume_max)
+    widths = frame.widths(np.minimum(volume, vref), vref)
     frame.add_links(widths, cmap(norm(vc)))
     if show_zones:
         frame.add_zones()
