@@ -12,6 +12,10 @@ import click
 
 from ..exceptions import CongestError, ConvergenceWarning
 
+#: ``--help`` text of every ``--method`` option.
+METHOD_HELP = ("Equilibrium method: auto (gradient projection, gp), gp, or a Frank-Wolfe "
+               "variant (msa, fw, cfw, bfw).")
+
 
 def friendly_errors(func):
     """Turn congest's errors into a one-line message and exit code 1 (no traceback)."""
@@ -128,8 +132,7 @@ def solver_options(func):
                      help="Target relative gap of every equilibrium solve. Default: 1e-10, "
                           "or 1e-5 with a link-based method (msa, fw, cfw, bfw), which stall "
                           "before tighter gaps."),
-        click.option("--method", default="auto", show_default=True,
-                     help="Equilibrium method: auto, or one of congest.METHODS."),
+        click.option("--method", default="auto", show_default=True, help=METHOD_HELP),
         click.option("--max-iter", type=click.IntRange(min=1), default=None,
                      help="Iteration cap of each solve."),
     ]

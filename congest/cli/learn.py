@@ -93,7 +93,8 @@ def _write_csv(frame, path):
                                  "1/sqrt(t) or 1/t (rule default if not given).")
 @click.option("--theta", type=click.FloatRange(min=0), default=1.0, show_default=True,
               help="Logit dispersion, per minute.")
-@click.option("--days", type=click.IntRange(min=1), default=200, show_default=True)
+@click.option("--days", type=click.IntRange(min=1), default=200, show_default=True,
+              help="Days of repeated play in each replication.")
 @click.option("--information", type=click.Choice(["full", "experience"]), default="full",
               show_default=True,
               help="full: estimates for every route of the set; experience: only for the "
@@ -109,7 +110,9 @@ def _write_csv(frame, path):
               help="Coefficient of variation of the noise on travel-time estimates.")
 @click.option("--drivers", type=click.IntRange(min=1), default=None,
               help="Simulate this many individual drivers instead of a continuum.")
-@click.option("--replications", type=click.IntRange(min=1), default=1, show_default=True)
+@click.option("--replications", type=click.IntRange(min=1), default=1, show_default=True,
+              help="Independent runs, each with its own random draws (noise, choices); "
+                   "the per-day CSV has one row per day and replication.")
 @click.option("--seed", type=int, default=None, help="Seed for every random draw.")
 @click.option("--routes", "k", type=click.IntRange(min=0), default=3, show_default=True,
               help="Shortest paths per OD pair added to the route set, at free-flow and "

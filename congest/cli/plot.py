@@ -13,7 +13,7 @@ from pathlib import Path
 
 import click
 
-from ._common import check_paths, friendly_errors, load_network, network_options
+from ._common import METHOD_HELP, check_paths, friendly_errors, load_network, network_options
 
 __all__ = ["command", "KINDS", "read_link_column"]
 
@@ -197,7 +197,7 @@ def _table_figure(kind, path, *, currency, title, shares):
               help="Equilibrium to solve when no --results are given.")
 @click.option("--gap", type=click.FloatRange(min=0, min_open=True), default=1e-5,
               show_default=True, help="Target relative gap of solves made here.")
-@click.option("--method", default="auto", show_default=True, help="Equilibrium method.")
+@click.option("--method", default="auto", show_default=True, help=METHOD_HELP)
 @click.option("--link", "links", multiple=True, type=int, metavar="LINK_ID",
               help="select-link: id of a link whose trips to map; repeat the option for "
                    "several (--link 157 --link 158).")

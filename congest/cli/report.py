@@ -6,7 +6,14 @@ from pathlib import Path
 
 import click
 
-from ._common import _slug, check_paths, friendly_errors, load_network, network_options
+from ._common import (
+    METHOD_HELP,
+    _slug,
+    check_paths,
+    friendly_errors,
+    load_network,
+    network_options,
+)
 
 __all__ = ["command"]
 
@@ -24,7 +31,7 @@ _STEP_TEXT = {
               help="Report folder. Default: <network>-report in the current folder.")
 @click.option("--gap", type=click.FloatRange(min=0, min_open=True), default=1e-6,
               show_default=True, help="Target relative gap of every equilibrium.")
-@click.option("--method", default="auto", show_default=True, help="Equilibrium method.")
+@click.option("--method", default="auto", show_default=True, help=METHOD_HELP)
 @click.option("--advice-share", type=click.FloatRange(0.0, 1.0), default=0.5,
               show_default=True, help="Share of drivers on free-flow advice in the mixed "
                                       "scenario.")

@@ -8,7 +8,14 @@ from pathlib import Path
 
 import click
 
-from ._common import _slug, check_paths, friendly_errors, load_network, network_options
+from ._common import (
+    METHOD_HELP,
+    _slug,
+    check_paths,
+    friendly_errors,
+    load_network,
+    network_options,
+)
 
 __all__ = ["command", "parse_values"]
 
@@ -112,7 +119,7 @@ def summary_lines(result, net, out):
 @click.option("--scenario", "scenarios", multiple=True, metavar="NAME",
               help="Add the columns of this scenario of 'congest compare' (repeatable), "
                    "e.g. free_flow_advice.")
-@click.option("--method", default="auto", show_default=True, help="Equilibrium method.")
+@click.option("--method", default="auto", show_default=True, help=METHOD_HELP)
 @click.option("--gap", type=click.FloatRange(min=0, min_open=True), default=1e-6,
               show_default=True, help="Target relative gap of every solve.")
 @click.option("--max-iter", type=click.IntRange(min=1), default=None,
