@@ -237,6 +237,9 @@ GMNS_CASES = [
      ["required column is missing"]),
     ("link.csv", lambda t: drop_column(t, "to_node_id"), 1, "to_node_id", None,
      ["required column"]),
+    # a spreadsheet saved with semicolons (common practice in decimal-comma locales)
+    ("link.csv", lambda t: t.replace(",", ";"), 1, "link_id", None,
+     ["required column is missing", "separated by semicolons"]),
     ("link.csv", lambda t: cell(t, 3, "capacity", "lots"), 3, "capacity", "lots",
      ["not a number"]),
     ("link.csv", lambda t: cell(t, 4, "capacity", "nan"), 4, "capacity", "nan", ["NaN"]),

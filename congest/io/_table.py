@@ -105,6 +105,12 @@ class Table:
                 for c in self.frame.columns:
                     if c.lower() == column.lower():
                         hint = f"; did you mean {c!r} (names are case-sensitive)?"
+                if len(self.frame.columns) == 1:
+                    for sep, name in ((";", "semicolons"), ("\t", "tabs"), ("|", "bars")):
+                        if sep in self.frame.columns[0]:
+                            hint = (f"; the header seems separated by {name}: save the file "
+                                    "with commas as separators (CSV, comma-delimited)")
+                            break
                 raise InputError(f"required column is missing (columns found: {present}){hint}",
                                  path=self.path, row=1, column=column)
 
