@@ -310,6 +310,21 @@ def test_toll_map_draws_tolled_links_and_amounts(net):
     assert "1 link(s) with tolls below" in text(fig, "congest-footnote")
 
 
+def test_toll_map_scale_is_not_squeezed_by_one_dear_link(net):
+    toll = np.zeros(net.n_links)
+    toll[:20] = np.linspace(0.1, 0.5, 20)
+    toll[20] = 4.0  # one bridge toll eight times the rest
+    fig = toll_map(net, toll, currency="crowns")
+    expected = toll_colormap()(Normalize(0.0, 0.5)(np.minimum(toll[:21], 0.5)))
+    np.testing.assert_allclose(layer(fig, "links").get_colors(), expected, atol=1e-12)
+    assert "1 link(s) with tolls above 0.50 crowns drawn in the top colour" in text(
+        fig, "congest-footnote")
+    # without an outlier the scale runs to the largest toll
+    toll[20] = 0.5
+    fig = toll_map(net, toll, currency="crowns")
+    assert "top colour" not in text(fig, "congest-footnote")
+
+
 def test_select_link_map_highlights_the_selection(net):
     sel_flow = np.zeros(net.n_links)
     sel_flow[[0, 4, 7, 12]] = [80.0, 80.0, 35.0, 45.0]

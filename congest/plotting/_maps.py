@@ -578,7 +578,13 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     context = np.tile(np.array([[0.79, 0.81, 0.83, 1.0]]), (net.n_links, 1))
     frame.add_links(hair, context, layer="context", zorder=1, mask=~tolled)
     top = float(amount.max()) if tolled.any() else 1.0
-    norm = Normalize(vmin=0.0, vmax=_nice(top, fine=True))
+    # a few dear links (a bridge, say) would squeeze every other toll into one colour:
+    # the scale then ends at the 95th percentile and the dearer links take its top colour
+    usual = float(np.quantile(amount[tolled], 0.95)) if tolled.any() else top
+    capped = tolled.sum() >= 10 and top > 2.0 * usual
+    scale_top = _nice(usual if capped else top, fine=True)
+    n_above = int(np.sum(amount > scale_top)) if capped else 0
+    norm = Normalize(vmin=0.0, vmax=scale_top)
     cmap = toll_colormap()
     if volume is not None:
         vref = float(np.max(volume[tolled])) if tolled.any() else 0.0
@@ -588,7 +594,8 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
         vref = 0.0
         widths = np.full(net.n_links, max(frame.max_width * 0.7, 1.0))
     frame.add_links(widths, cmap(norm(amount)), mask=tolled, zorder=3)
-    frame.add_colorbar(cmap, norm, f"Toll, {currency} per vehicle")
+    frame.add_colorbar(cmap, norm, f"Toll, {currency} per vehicle",
+                       extend="max" if n_above else "neither")
     if volume is not None and vref > 0:
         frame.add_width_key(_samples(vref), f"Volume on tolled links,\nvehicles in the "
                             f"{_period(net)}", reference=vref)
@@ -614,9 +621,14 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     else:
         sub = "no tolled links"
     frame.titles(f"{net.name}: {scenario}", sub)
-    frame.footnote(f"{tiny:,} link(s) with tolls below {TOLL_RELATIVE_FLOOR * top_toll:.2g} "
-                   f"{currency} "
-                   "drawn as untolled." if tiny else "")
+    notes = []
+    if n_above:
+        notes.append(f"{n_above:,} link(s) with tolls above {_money(scale_top)} {currency} "
+                     "drawn in the top colour.")
+    if tiny:
+        notes.append(f"{tiny:,} link(s) with tolls below "
+                     f"{TOLL_RELATIVE_FLOOR * top_toll:.2g} {currency} drawn as untolled.")
+    frame.footnote(" ".join(notes))
     return frame.fig
 
 
