@@ -5,6 +5,8 @@
 :func:`write_report` writes the folder::
 
     scenarios.csv        the comparison table, one row per scenario
+    sweep.csv            the demand sweep's table, when a sweep was run
+    learning-days.csv    the learning simulation's per-day table, when one was run
     links.geojson        link results of every scenario (RFC 7946 LineStrings)
     *.png / *.svg        the maps and charts
     summary.md           the key figures, the table and the cautions in Markdown
@@ -470,6 +472,13 @@ def write_report(report, folder, *, image_format="png", embed=True, dpi=150) -> 
     with atomic_write(folder / "scenarios.csv", newline="") as fh:
         cmp.table.to_csv(fh, lineterminator="\n")
     written.append(folder / "scenarios.csv")
+    tables = {"sweep.csv": getattr(report.sweep, "table", None),
+              "learning-days.csv": getattr(report.learning, "days", None)}
+    for name, frame in tables.items():
+        if frame is not None:
+            with atomic_write(folder / name, newline="") as fh:
+                frame.to_csv(fh, index=False, lineterminator="\n")
+            written.append(folder / name)
     net = report.network
     if report.has_coordinates:
         props = {}

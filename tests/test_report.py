@@ -20,6 +20,7 @@ matplotlib.use("Agg")
 
 import numpy as np
 import pandas as pd
+from pandas.testing import assert_frame_equal
 import pytest
 from click.testing import CliRunner
 
@@ -113,6 +114,17 @@ def test_table_and_geojson_match_the_comparison(report, embedded):
     # the summary's key figure is the comparison's price of anarchy
     fb = report.comparison.results["first_best"]
     assert f"Price of anarchy {fb.price_of_anarchy:.4f}" in (tmp_path / "summary.md").read_text()
+
+
+def test_sweep_and_learning_tables_are_written(report, linked):
+    out, written = linked
+    sweep = pd.read_csv(out / "sweep.csv")
+    assert sweep["demand_scale"].tolist() == [0.5, 1.0]
+    assert_frame_equal(sweep, report.sweep.table.reset_index(drop=True), check_dtype=False,
+                       rtol=1e-12)
+    days = pd.read_csv(out / "learning-days.csv")
+    assert len(days) == len(report.learning.days)
+    assert {out / "sweep.csv", out / "learning-days.csv"} <= set(written)
 
 
 def test_network_without_coordinates_gets_charts_but_no_maps(tmp_path):

@@ -59,7 +59,8 @@ def command(network, out_dir, gap, method, advice_share, plans, sweep_levels, le
 
     The folder holds scenarios.csv (the comparison of free-flow advice, reactive advice,
     advice followed by a share of drivers, user equilibrium, system optimum, marginal-cost
-    tolls and any --plan), links.geojson, maps and charts, summary.md and report.html.
+    tolls and any --plan), links.geojson, maps and charts, summary.md and report.html;
+    with --sweep also sweep.csv, and with --learning-days learning-days.csv.
     Results are planning-level estimates, not for operational control or safety design.
 
     \b
