@@ -20,9 +20,9 @@ matplotlib.use("Agg")
 
 import numpy as np
 import pandas as pd
-from pandas.testing import assert_frame_equal
 import pytest
 from click.testing import CliRunner
+from pandas.testing import assert_frame_equal
 
 from congest.cli import main
 from congest.generate import grid_network
