@@ -231,6 +231,24 @@ def test_valid_base_network_solves(tmp_path):
     assert res.exit_code == 0, res.output
 
 
+def test_progress_goes_to_standard_error_and_changes_no_result(tmp_path):
+    folder = gmns(tmp_path)
+    quiet = run(folder, "--out", tmp_path / "a.csv", "--no-progress")
+    loud = run(folder, "--out", tmp_path / "b.csv", "--progress")
+    assert quiet.exit_code == loud.exit_code == 0, loud.output
+    assert quiet.stdout == loud.stdout.replace("b.csv", "a.csv")
+    assert (tmp_path / "a.csv").read_bytes() == (tmp_path / "b.csv").read_bytes()
+
+
+def test_progress_printer_prints_iteration_and_gap(capsys):
+    from congest.cli.solve import _progress_printer
+
+    report = _progress_printer(every=0.0)
+    assert report(3, None, 1.25e-3) is False  # never stops the solver
+    err = capsys.readouterr().err
+    assert "iteration 3: relative gap 1.25e-03" in err
+
+
 GMNS_CASES = [
     # (file, change, row, column, value, words)
     ("link.csv", lambda t: drop_column(t, "capacity"), 1, "capacity", None,

@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import math
 import sys
+import time
 from pathlib import Path
 
 import click
@@ -48,6 +49,22 @@ def summary_lines(result, net, out):
     return rows
 
 
+def _progress_printer(every=1.0):
+    """A solver callback that prints the iteration and gap at most every ``every`` s."""
+    start = time.perf_counter()
+    last = [start]
+
+    def report(k, flow, gap):
+        now = time.perf_counter()
+        if now - last[0] >= every:
+            last[0] = now
+            click.echo(f"  iteration {k}: relative gap {gap:.2e} after {now - start:.0f} s",
+                       err=True)
+        return False
+
+    return report
+
+
 @click.command("solve")
 @click.argument("network", type=click.Path(exists=True))
 @click.option("--objective", type=click.Choice(["ue", "so"]), default="ue", show_default=True,
@@ -69,10 +86,13 @@ def summary_lines(result, net, out):
               help="Print the summary as JSON instead of text.")
 @click.option("--strict", is_flag=True,
               help="Exit with code 2 when the gap target was not reached.")
+@click.option("--progress/--no-progress", default=None,
+              help="Print the relative gap on standard error while solving (at most once "
+                   "a second). Default: on when standard error is a terminal.")
 @network_options
 @friendly_errors
 def command(network, objective, method, gap, max_iter, time_limit, out, as_json, strict,
-            **net_opts):
+            progress, **net_opts):
     """Solve user equilibrium or system optimum on NETWORK.
 
     NETWORK is a GMNS folder (node.csv, link.csv, trips.csv, scenario.json), a folder
@@ -96,8 +116,10 @@ def command(network, objective, method, gap, max_iter, time_limit, out, as_json,
         click.echo(f"warning: the network has no trips ({where}); every volume is zero",
                    err=True)
     check_paths(net, layout)
+    if progress is None:
+        progress = sys.stderr.isatty()
     result = solve(net, objective=objective, method=method, tol=gap, max_iter=max_iter,
-                   time_limit=time_limit)
+                   time_limit=time_limit, callback=_progress_printer() if progress else None)
     if out is None:
         out = Path(f"{_slug(Path(network).resolve().stem)}-{objective}-links.csv")
     stream = sys.stdout
