@@ -29,8 +29,9 @@ _STEP_TEXT = {
 @click.argument("network", type=click.Path(exists=True))
 @click.option("--out-dir", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Report folder. Default: <network>-report in the current folder.")
-@click.option("--gap", type=click.FloatRange(min=0, min_open=True), default=1e-6,
-              show_default=True, help="Target relative gap of every equilibrium.")
+@click.option("--gap", type=click.FloatRange(min=0, min_open=True), default=None,
+              help="Target relative gap of every equilibrium. Default: 1e-10, or 1e-5 with "
+                   "a link-based method, as in compare, so the report's table is compare's.")
 @click.option("--method", default="auto", show_default=True, help=METHOD_HELP)
 @click.option("--advice-share", type=click.FloatRange(0.0, 1.0), default=0.5,
               show_default=True, help="Share of drivers on free-flow advice in the mixed "
@@ -77,12 +78,14 @@ def command(network, out_dir, gap, method, advice_share, plans, sweep_levels, le
     from ..io.geojson import is_lonlat
     from ..io.tollplan import read_toll_plan
     from ..report import build_report, write_report
+    from .compare import default_gap
     from .sweep import parse_values
 
     net, layout = load_network(network, **net_opts)
     check_paths(net, layout)
     toll_plans = [read_toll_plan(p, net) for p in plans]
     levels = parse_values(sweep_levels, "--sweep") if sweep_levels else None
+    gap = default_gap(method) if gap is None else gap
     if out_dir is None:
         out_dir = Path(f"{_slug(Path(network).resolve().stem)}-report")
     console = Console(stderr=True, highlight=False)

@@ -12,6 +12,7 @@ import click
 
 from ..equilibrium import METHODS
 from ._common import _slug, check_paths, friendly_errors, load_network, network_options
+from .compare import default_gap
 
 __all__ = ["command"]
 
@@ -73,8 +74,10 @@ def _progress_printer(every=1.0):
 @click.option("--method", default="auto", show_default=True,
               help="Solution method: auto (the library's default) or one of "
                    f"{', '.join(sorted(METHODS))}.")
-@click.option("--gap", "gap", type=float, default=1e-4, show_default=True,
-              help="Target relative gap (TSTT - SPTT) / TSTT.")
+@click.option("--gap", "gap", type=click.FloatRange(min=0, min_open=True), default=None,
+              help="Target relative gap (TSTT - SPTT) / TSTT. Default: 1e-10, or 1e-5 with "
+                   "a link-based method (msa, fw, cfw, bfw), which stall before tighter "
+                   "gaps; the same as compare and toll.")
 @click.option("--max-iter", type=click.IntRange(min=1), default=None,
               help="Iteration cap (method default if not given).")
 @click.option("--time-limit", type=click.FloatRange(min=0, min_open=True), default=None,
@@ -116,6 +119,7 @@ def command(network, objective, method, gap, max_iter, time_limit, out, as_json,
         click.echo(f"warning: the network has no trips ({where}); every volume is zero",
                    err=True)
     check_paths(net, layout)
+    gap = default_gap(method) if gap is None else gap
     if progress is None:
         progress = sys.stderr.isatty()
     result = solve(net, objective=objective, method=method, tol=gap, max_iter=max_iter,
