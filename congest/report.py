@@ -188,16 +188,9 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
     if has_xy:
         # one width and one colour scale for all flow maps, so that they compare by eye
         advice = cmp.links.get("free_flow_advice")
-        volumes = [ue.flow, so.flow] + ([advice["volume"].to_numpy(float)]
-                                        if advice is not None else [])
-        cap = net.period_capacity
-        with np.errstate(divide="ignore", invalid="ignore"):
-            top_vc = max(float(np.max(np.where(cap > 0, v / cap, 0.0), initial=0.0))
-                         for v in volumes)
-        scales = {"vc_max": float(np.clip(np.ceil(top_vc * 4.0 - 1e-9) / 4.0, 1.0, 2.0))}
-        top_volume = max(float(np.max(v, initial=0.0)) for v in volumes)
-        if top_volume > 0:
-            scales["volume_max"] = top_volume
+        advice_flow = None if advice is None else advice["volume"].to_numpy(float)
+        scales = plotting.flow_scales(net, ue, so,
+                                      *([] if advice_flow is None else [advice_flow]))
         charts.append(Chart("flow-ue", plotting.flow_map(net, ue, **scales),
                             "User equilibrium",
                             "Every driver takes a quickest route. Width shows volume, colour "
@@ -209,11 +202,10 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
                             "What the system optimum moves",
                             "Change in volume from user equilibrium to system optimum: "
                             "warm colours gain traffic, cool colours lose it."))
-        if advice is not None:
-            flow = advice["volume"].to_numpy(float)
+        if advice_flow is not None:
             charts.append(Chart(
                 "flow-free-flow-advice",
-                plotting.flow_map(net, flow, scenario="free-flow advice to all",
+                plotting.flow_map(net, advice_flow, scenario="free-flow advice to all",
                                   key_figure=_row_key_figure(table, "free_flow_advice", net),
                                   **scales),
                 "Advice to all on free-flow routes",

@@ -240,6 +240,17 @@ def test_progress_goes_to_standard_error_and_changes_no_result(tmp_path):
     assert (tmp_path / "a.csv").read_bytes() == (tmp_path / "b.csv").read_bytes()
 
 
+def test_method_help_and_default_gap_know_every_method():
+    import congest
+    from congest.cli._common import LINK_BASED, METHOD_HELP, default_gap
+
+    for name in congest.METHODS:
+        assert name in METHOD_HELP
+    assert set(LINK_BASED) <= set(congest.METHODS)
+    assert default_gap("auto") == default_gap("gp") == 1e-10
+    assert default_gap("fw") == 1e-5
+
+
 def test_progress_printer_prints_iteration_and_gap(capsys):
     from congest.cli.solve import _progress_printer
 

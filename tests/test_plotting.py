@@ -140,6 +140,21 @@ def test_flow_map_widths_ordered_like_volumes(net):
     np.testing.assert_allclose(slope[flow > 0], slope[flow > 0][0], rtol=1e-9)
 
 
+def test_flow_scales_fit_every_flow_of_the_set(net):
+    from congest.plotting import flow_scales
+
+    low = np.linspace(0, 900, net.n_links)
+    high = 1.7 * low
+    scales = flow_scales(net, low, high)
+    assert scales["volume_max"] == pytest.approx(high.max())
+    # one flow alone gives the map's own defaults: the same picture with or without
+    own = layer(flow_map(net, high), "links")
+    shared = layer(flow_map(net, high, **flow_scales(net, high)), "links")
+    np.testing.assert_allclose(shared.get_linewidths(), own.get_linewidths())
+    np.testing.assert_allclose(shared.get_colors(), own.get_colors())
+    assert flow_scales(net, np.zeros(net.n_links)) == {"vc_max": 1.0}
+
+
 def test_flow_maps_with_a_shared_volume_scale_draw_equal_volumes_equally(net):
     big = np.linspace(0, 900, net.n_links)
     small = big / 3.0

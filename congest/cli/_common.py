@@ -16,6 +16,25 @@ from ..exceptions import CongestError, ConvergenceWarning
 METHOD_HELP = ("Equilibrium method: auto (gradient projection, gp), gp, or a Frank-Wolfe "
                "variant (msa, fw, cfw, bfw).")
 
+#: Link-based methods: they stall long before a relative gap of 1e-10.
+LINK_BASED = ("msa", "fw", "cfw", "bfw")
+
+#: How ``default_gap`` reads in ``--help``.
+GAP_DEFAULT_HELP = ("Default: 1e-10, or 1e-5 with a link-based method (msa, fw, cfw, bfw), "
+                    "which stall before tighter gaps.")
+
+
+def default_gap(method):
+    """Gap target used when none is given: tight unless the method is link-based.
+
+    One rule for solve, compare, toll and report, so one network gives one set of
+    numbers whichever command computed them.
+    """
+    from ..equilibrium import DEFAULT_METHOD
+
+    name = DEFAULT_METHOD if method == "auto" else method
+    return 1e-5 if name in LINK_BASED else 1e-10
+
 
 def friendly_errors(func):
     """Turn congest's errors into a one-line message and exit code 1 (no traceback)."""
@@ -129,9 +148,8 @@ def solver_options(func):
     """``--gap``, ``--method`` and ``--max-iter`` of commands that run many solves."""
     options = [
         click.option("--gap", type=float, default=None,
-                     help="Target relative gap of every equilibrium solve. Default: 1e-10, "
-                          "or 1e-5 with a link-based method (msa, fw, cfw, bfw), which stall "
-                          "before tighter gaps."),
+                     help=f"Target relative gap of every equilibrium solve. "
+                          f"{GAP_DEFAULT_HELP}"),
         click.option("--method", default="auto", show_default=True, help=METHOD_HELP),
         click.option("--max-iter", type=click.IntRange(min=1), default=None,
                      help="Iteration cap of each solve."),

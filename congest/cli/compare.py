@@ -11,24 +11,14 @@ import click
 from ._common import (
     _slug,
     check_paths,
+    default_gap,
     friendly_errors,
     load_network,
     network_options,
     solver_options,
 )
 
-__all__ = ["command", "write_comparison", "comparison_json", "default_gap"]
-
-#: Link-based methods: they stall long before a relative gap of 1e-10.
-LINK_BASED = ("msa", "fw", "cfw", "bfw")
-
-
-def default_gap(method):
-    """Gap target used when none is given: tight unless the method is link-based."""
-    from ..equilibrium import DEFAULT_METHOD
-
-    name = DEFAULT_METHOD if method == "auto" else method
-    return 1e-5 if name in LINK_BASED else 1e-10
+__all__ = ["command", "write_comparison", "comparison_json"]
 
 #: Columns printed on screen: (table column, header, format).
 SHOWN = (

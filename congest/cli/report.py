@@ -7,9 +7,11 @@ from pathlib import Path
 import click
 
 from ._common import (
+    GAP_DEFAULT_HELP,
     METHOD_HELP,
     _slug,
     check_paths,
+    default_gap,
     friendly_errors,
     load_network,
     network_options,
@@ -30,8 +32,7 @@ _STEP_TEXT = {
 @click.option("--out-dir", "out_dir", type=click.Path(file_okay=False), default=None,
               help="Report folder. Default: <network>-report in the current folder.")
 @click.option("--gap", type=click.FloatRange(min=0, min_open=True), default=None,
-              help="Target relative gap of every equilibrium. Default: 1e-10, or 1e-5 with "
-                   "a link-based method, as in compare, so the report's table is compare's.")
+              help=f"Target relative gap of every equilibrium. {GAP_DEFAULT_HELP}")
 @click.option("--method", default="auto", show_default=True, help=METHOD_HELP)
 @click.option("--advice-share", type=click.FloatRange(0.0, 1.0), default=0.5,
               show_default=True, help="Share of drivers on free-flow advice in the mixed "
@@ -78,7 +79,6 @@ def command(network, out_dir, gap, method, advice_share, plans, sweep_levels, le
     from ..io.geojson import is_lonlat
     from ..io.tollplan import read_toll_plan
     from ..report import build_report, write_report
-    from .compare import default_gap
     from .sweep import parse_values
 
     net, layout = load_network(network, **net_opts)

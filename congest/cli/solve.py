@@ -10,9 +10,16 @@ from pathlib import Path
 
 import click
 
-from ..equilibrium import METHODS
-from ._common import _slug, check_paths, friendly_errors, load_network, network_options
-from .compare import default_gap
+from ._common import (
+    GAP_DEFAULT_HELP,
+    METHOD_HELP,
+    _slug,
+    check_paths,
+    default_gap,
+    friendly_errors,
+    load_network,
+    network_options,
+)
 
 __all__ = ["command"]
 
@@ -52,13 +59,13 @@ def summary_lines(result, net, out):
 
 def _progress_printer(every=1.0):
     """A solver callback that prints the iteration and gap at most every ``every`` s."""
-    start = time.perf_counter()
-    last = [start]
+    start = last = time.perf_counter()
 
     def report(k, flow, gap):
+        nonlocal last
         now = time.perf_counter()
-        if now - last[0] >= every:
-            last[0] = now
+        if now - last >= every:
+            last = now
             click.echo(f"  iteration {k}: relative gap {gap:.2e} after {now - start:.0f} s",
                        err=True)
         return False
@@ -71,13 +78,9 @@ def _progress_printer(every=1.0):
 @click.option("--objective", type=click.Choice(["ue", "so"]), default="ue", show_default=True,
               help="ue: every driver takes a quickest route (Wardrop user equilibrium); "
                    "so: total travel time is least (system optimum).")
-@click.option("--method", default="auto", show_default=True,
-              help="Solution method: auto (the library's default) or one of "
-                   f"{', '.join(sorted(METHODS))}.")
+@click.option("--method", default="auto", show_default=True, help=METHOD_HELP)
 @click.option("--gap", "gap", type=click.FloatRange(min=0, min_open=True), default=None,
-              help="Target relative gap (TSTT - SPTT) / TSTT. Default: 1e-10, or 1e-5 with "
-                   "a link-based method (msa, fw, cfw, bfw), which stall before tighter "
-                   "gaps; the same as compare and toll.")
+              help=f"Target relative gap (TSTT - SPTT) / TSTT. {GAP_DEFAULT_HELP}")
 @click.option("--max-iter", type=click.IntRange(min=1), default=None,
               help="Iteration cap (method default if not given).")
 @click.option("--time-limit", type=click.FloatRange(min=0, min_open=True), default=None,

@@ -10,12 +10,12 @@ import click
 from ._common import (
     _slug,
     check_paths,
+    default_gap,
     friendly_errors,
     load_network,
     network_options,
     solver_options,
 )
-from .compare import default_gap
 
 __all__ = ["command", "parse_groups", "parse_classes"]
 

@@ -22,6 +22,7 @@ from ._maps import (
     change_colormap,
     difference_map,
     flow_map,
+    flow_scales,
     load_colormap,
     select_link_flow,
     select_link_map,
@@ -32,6 +33,7 @@ from ._output import FORMATS, save_figure
 
 __all__ = [
     "flow_map",
+    "flow_scales",
     "difference_map",
     "toll_map",
     "select_link_map",

@@ -433,12 +433,10 @@ def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
     net = network
     eq = flow if hasattr(flow, "flow") and hasattr(flow, "network") else None
     volume = _as_flow(net, flow, "flow")
-    cap = net.period_capacity
-    with np.errstate(divide="ignore", invalid="ignore"):
-        vc = np.where(cap > 0, volume / cap, 0.0)
+    vc = _volume_capacity(net, volume)
     top = float(np.max(vc)) if vc.size else 0.0
     if vc_max is None:
-        vc_max = float(np.clip(math.ceil(top * 4.0 - 1e-9) / 4.0, 1.0, 2.0))
+        vc_max = _vc_scale_top(top)
     norm = Normalize(vmin=0.0, vmax=vc_max)
     cmap = load_colormap()
 
@@ -470,6 +468,33 @@ def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
     frame.titles(f"{net.name}: {scenario}", key_figure)
     frame.footnote("Two-way roads: each direction drawn on its right-hand side.")
     return frame.fig
+
+
+def _volume_capacity(net, volume):
+    cap = net.period_capacity
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(cap > 0, volume / cap, 0.0)
+
+
+def _vc_scale_top(top):
+    """Top of the volume/capacity colour scale: ``top`` up to a quarter, in [1, 2]."""
+    return float(np.clip(math.ceil(top * 4.0 - 1e-9) / 4.0, 1.0, 2.0))
+
+
+def flow_scales(network, *flows):
+    """``vc_max`` and ``volume_max`` for :func:`flow_map` that fit all of ``flows``.
+
+    Pass the result to every map of a set (``flow_map(net, ue, **scales)``) so that the
+    maps share one width and one colour scale and compare by eye.
+    """
+    volumes = [_as_flow(network, f, "flow") for f in flows]
+    top_vc = max((float(np.max(_volume_capacity(network, v), initial=0.0))
+                  for v in volumes), default=0.0)
+    scales = {"vc_max": _vc_scale_top(top_vc)}
+    top_volume = max((float(np.max(v, initial=0.0)) for v in volumes), default=0.0)
+    if top_volume > 0:
+        scales["volume_max"] = top_volume
+    return scales
 
 
 def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), key_figure=None,
