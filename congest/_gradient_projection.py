@@ -103,6 +103,9 @@ class RouteState:
         solution, see option ``keep`` of :func:`solve_gp`). They are not route choices
         and :mod:`congest.routes` ignores them; a warm start loads them with the used
         routes, so that flow can move onto them at once when costs change.
+    od_class : ndarray of int, shape (n_od,), optional
+        User class of each entry (multi-class equilibrium: one entry per class and OD
+        pair); ``None`` for a single class.
     """
 
     origin: np.ndarray
@@ -116,6 +119,7 @@ class RouteState:
     idle_od_ptr: np.ndarray | None = None
     idle_path_ptr: np.ndarray | None = None
     idle_path_links: np.ndarray | None = None
+    od_class: np.ndarray | None = None
 
 
 # --------------------------------------------------------------------------- kernels
@@ -186,13 +190,13 @@ _PARALLEL_WORK = 200_000  # origins x links above which the trees run in paralle
 
 @numba.njit(cache=True)
 def _needs_route(od_row, od_d, zdist, cost, od_first, p_start, p_len, p_next, pool, rel_tol,
-                 need):
+                 need, p_charge):
     """Flag the OD pairs whose tree route is cheaper than all their routes."""
     for od in range(od_first.size):
         p = od_first[od]
         best = np.inf
         while p >= 0:
-            c = 0.0
+            c = p_charge[p]
             for i in range(p_start[p], p_start[p] + p_len[p]):
                 c += cost[pool[i]]
             if c < best:
@@ -231,11 +235,12 @@ def _sum_flows(od_demand, od_first, p_start, p_len, p_flow, p_next, pool, x):
 
 @numba.njit(cache=True)
 def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_flow,
-                 p_next, pool, counters, mark, mark2, keep, prune, p_cost, max_idle):
+                 p_next, pool, counters, mark, mark2, keep, prune, p_cost, max_idle, p_charge):
     """Newton moves of one OD pair's flow to its cheapest route; returns its excess cost.
 
     The excess ``sum_p f_p (c_p - c_min)`` is measured before the moves. ``p_cost`` is
-    scratch space per route (the route costs at the start of the visit).
+    scratch space per route (the route costs at the start of the visit); ``p_charge``
+    is each route's constant cost of its class (zero with a single class).
     """
     first = od_first[od]
     if first < 0 or p_next[first] < 0:
@@ -245,7 +250,7 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
     n_used = 0
     p = first
     while p >= 0:
-        c = 0.0
+        c = p_charge[p]
         for i in range(p_start[p], p_start[p] + p_len[p]):
             c += cost[pool[i]]
         p_cost[p] = c
@@ -295,7 +300,7 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
             continue
         counters[_STAMP] += 1
         sp = counters[_STAMP]
-        cp = 0.0
+        cp = p_charge[p]
         d_own = 0.0
         d_common = 0.0
         for i in range(p_start[p], p_start[p] + p_len[p]):
@@ -306,7 +311,7 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
                 d_common += deriv[l]
             else:
                 d_own += deriv[l]
-        cb = 0.0
+        cb = p_charge[best]
         db = 0.0
         for i in range(b0, b1):
             l = pool[i]
@@ -335,7 +340,7 @@ def _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_
                 # Newton overshoots where the cost derivative grows fast along the move
                 # (steep marginal costs of SO): if the routes swapped order, step back
                 # to the secant root between the two points
-                new_diff = 0.0
+                new_diff = p_charge[p] - p_charge[best]
                 for i in range(p_start[p], p_start[p] + p_len[p]):
                     new_diff += cost[pool[i]]
                 for i in range(b0, b1):
@@ -439,10 +444,15 @@ _write_routes_parallel, _write_routes_serial = _twins(_write_routes_impl)
 
 @numba.njit(cache=True, inline="always")
 def _join_route(od, n, start, h, flow, od_first, p_start, p_len, p_flow, p_hash, p_next,
-                counters):
+                counters, pool, p_charge, od_cls, surcharge):
     """Give OD pair ``od`` a new route of ``n`` links at ``pool[start:]`` with ``flow``."""
     q = counters[_N_PATHS]
     counters[_N_PATHS] += 1
+    k = od_cls[od]
+    c = 0.0
+    for i in range(start, start + n):
+        c += surcharge[k, pool[i]]
+    p_charge[q] = c
     p_start[q] = start
     p_len[q] = n
     p_hash[q] = h
@@ -454,7 +464,7 @@ def _join_route(od, n, start, h, flow, od_first, p_start, p_len, p_flow, p_hash,
 @numba.njit(cache=True)
 def _column_pass(new_len, new_at, new_hash, od_demand, x, kind, par, so, cost, deriv,
                  od_first, p_start, p_len, p_flow, p_hash, p_next, pool, counters, mark,
-                 mark2, keep, od_excess, p_cost, max_idle):
+                 mark2, keep, od_excess, p_cost, max_idle, p_charge, od_cls, surcharge):
     """Join each OD pair's new tree route (already written to the pool) to its set, then
     equilibrate the pair. Returns the excess cost found."""
     excess = 0.0
@@ -466,7 +476,7 @@ def _column_pass(new_len, new_at, new_hash, od_demand, x, kind, par, so, cost, d
         if n < 0 or od_first[od] >= 0:
             continue
         _join_route(od, n, new_at[od], new_hash[od], od_demand[od], od_first, p_start, p_len,
-                    p_flow, p_hash, p_next, counters)
+                    p_flow, p_hash, p_next, counters, pool, p_charge, od_cls, surcharge)
         new_len[od] = -1
         od_excess[od] = 0.0
         for i in range(new_at[od], new_at[od] + n):
@@ -483,15 +493,15 @@ def _column_pass(new_len, new_at, new_hash, od_demand, x, kind, par, so, cost, d
             if first >= 0 and p_next[first] >= 0:
                 e = _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
                                  p_flow, p_next, pool, counters, mark, mark2, keep, True,
-                                 p_cost, max_idle)
+                                 p_cost, max_idle, p_charge)
                 od_excess[od] = e
                 excess += e
             continue
         _join_route(od, n, new_at[od], new_hash[od], 0.0, od_first, p_start, p_len, p_flow,
-                    p_hash, p_next, counters)
+                    p_hash, p_next, counters, pool, p_charge, od_cls, surcharge)
         e = _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
                          p_flow, p_next, pool, counters, mark, mark2, keep, True, p_cost,
-                         max_idle)
+                         max_idle, p_charge)
         # a pair that just got a route is always revisited by the next inner pass
         od_excess[od] = e if e > 0.0 else np.inf
         excess += e
@@ -500,7 +510,8 @@ def _column_pass(new_len, new_at, new_hash, od_demand, x, kind, par, so, cost, d
 
 @numba.njit(cache=True)
 def _inner_pass(x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_flow, p_next,
-                pool, counters, mark, mark2, keep, od_excess, threshold, p_cost, max_idle):
+                pool, counters, mark, mark2, keep, od_excess, threshold, p_cost, max_idle,
+                p_charge):
     """Equilibrate the OD pairs whose last excess cost was above ``threshold``."""
     excess = 0.0
     for od in range(od_first.size):
@@ -511,7 +522,8 @@ def _inner_pass(x, kind, par, so, cost, deriv, od_first, p_start, p_len, p_flow,
             od_excess[od] = 0.0
             continue  # a single route has nothing to move (checked here: calls are dear)
         e = _equilibrate(od, x, kind, par, so, cost, deriv, od_first, p_start, p_len,
-                         p_flow, p_next, pool, counters, mark, mark2, keep, False, p_cost, max_idle)
+                         p_flow, p_next, pool, counters, mark, mark2, keep, False, p_cost, max_idle,
+                         p_charge)
         od_excess[od] = e
         excess += e
     return excess
@@ -546,7 +558,7 @@ def _extrapolate(od_first, p_next, p_flow, step, od_demand, fac, od_excess):
 
 @numba.njit(cache=True)
 def _compact(od_first, p_start, p_len, p_flow, p_hash, p_next, pool, counters, new_id,
-             live):
+             live, p_charge):
     """Drop the dead routes in place: live links moved down, live routes renumbered.
 
     ``new_id`` and ``live`` are work arrays of at least ``counters[_N_PATHS]`` entries.
@@ -587,6 +599,7 @@ def _compact(od_first, p_start, p_len, p_flow, p_hash, p_next, pool, counters, n
             p_flow[j] = p_flow[p]
             p_hash[j] = p_hash[p]
             p_next[j] = p_next[p]
+            p_charge[j] = p_charge[p]
     for j in range(m):
         if p_next[j] >= 0:
             p_next[j] = new_id[p_next[j]]
@@ -601,11 +614,11 @@ def _compact(od_first, p_start, p_len, p_flow, p_hash, p_next, pool, counters, n
 @numba.njit(cache=True)
 def _import(old_od_ptr, old_path_ptr, old_links, old_flow, idle_od_ptr, idle_path_ptr,
             idle_links, old_index, scale, od_first, p_start, p_len, p_flow, p_hash, p_next,
-            pool, counters):
+            pool, counters, p_charge, od_cls, surcharge):
     """Seed the route pool from an earlier state; ``old_index[od]`` = old OD or -1.
 
     Each OD pair gets its used routes (flows times ``scale``) and then its idle routes
-    (no flow).
+    (no flow); each route's class charge is summed at the new charges.
     """
     q = 0
     s = 0
@@ -633,8 +646,11 @@ def _import(old_od_ptr, old_path_ptr, old_links, old_flow, idle_od_ptr, idle_pat
             h = 1469598103934665603
             for i in range(b - 1, a - 1, -1):
                 h = (h ^ links[i]) * 1099511628211
+            c = 0.0
             for i in range(a, b):
                 pool[s + i - a] = links[i]
+                c += surcharge[od_cls[od], links[i]]
+            p_charge[q] = c
             p_start[q] = s
             p_len[q] = b - a
             p_flow[q] = f
@@ -695,6 +711,7 @@ class _Pool:
         self.length = np.zeros(n_paths, dtype=np.int64)
         self.flow = np.zeros(n_paths)
         self.cost = np.zeros(n_paths)  # scratch: route costs during a visit
+        self.charge = np.zeros(n_paths)  # constant cost of the route's class
         self.hash = np.zeros(n_paths, dtype=np.int64)
         self.next = np.full(n_paths, -1, dtype=np.int64)
         self.links = np.zeros(n_pool, dtype=np.int32)
@@ -714,7 +731,7 @@ class _Pool:
         need_l = used_l + n_pool
         if need_p > self.flow.size:
             size = max(need_p, 2 * self.flow.size)
-            for name in ("start", "length", "flow", "hash", "cost"):
+            for name in ("start", "length", "flow", "hash", "cost", "charge"):
                 old = getattr(self, name)
                 new = np.zeros(size, dtype=old.dtype)
                 new[:used_p] = old[:used_p]
@@ -736,7 +753,7 @@ class _Pool:
         n = int(self.counters[_N_PATHS])
         _compact(self.od_first, self.start, self.length, self.flow, self.hash, self.next,
                  self.links, self.counters, np.empty(n, dtype=np.int64),
-                 np.empty(n, dtype=np.int64))
+                 np.empty(n, dtype=np.int64), self.charge)
 
     def args(self):
         return (self.od_first, self.start, self.length, self.flow, self.hash, self.next,
@@ -758,15 +775,16 @@ class _Pool:
                      self.links, path_ptr, path_links, path_flow, used)
         return od_ptr, path_ptr, path_links, path_flow
 
-    def export(self, origin, destination, demand, n_links) -> RouteState:
+    def export(self, origin, destination, demand, n_links, od_class=None) -> RouteState:
         od_ptr, path_ptr, path_links, path_flow = self._export_csr(True)
         idle_od_ptr, idle_path_ptr, idle_path_links, _ = self._export_csr(False)
         for arr in (origin, destination, demand, od_ptr, path_ptr, path_links, path_flow,
-                    idle_od_ptr, idle_path_ptr, idle_path_links):
-            arr.setflags(write=False)
+                    idle_od_ptr, idle_path_ptr, idle_path_links, od_class):
+            if arr is not None:
+                arr.setflags(write=False)
         return RouteState(origin, destination, demand, od_ptr, path_ptr, path_links,
                           path_flow, int(n_links), idle_od_ptr, idle_path_ptr,
-                          idle_path_links)
+                          idle_path_links, od_class)
 
 
 class _Accelerator:
@@ -828,16 +846,55 @@ class _Accelerator:
         return True
 
 
-def _seed_from(state, network, od_o, od_d, od_q, pool):
+@numba.njit(cache=True)
+def _charge_total(od_first, p_next, p_flow, p_charge):
+    """Sum of route flow times route class charge."""
+    total = 0.0
+    for od in range(od_first.size):
+        p = od_first[od]
+        while p >= 0:
+            total += p_flow[p] * p_charge[p]
+            p = p_next[p]
+    return total
+
+
+@numba.njit(cache=True)
+def _class_flows_kernel(od_cls, od_first, p_start, p_len, p_flow, p_next, pool, xk):
+    for od in range(od_first.size):
+        k = od_cls[od]
+        p = od_first[od]
+        while p >= 0:
+            f = p_flow[p]
+            if f != 0.0:
+                for i in range(p_start[p], p_start[p] + p_len[p]):
+                    xk[k, pool[i]] += f
+            p = p_next[p]
+
+
+def _class_flows(n_cls, n_links, od_cls, pool):
+    """Link flows of each class, shape ``(n_cls, n_links)``."""
+    xk = np.zeros((n_cls, n_links))
+    _class_flows_kernel(od_cls, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
+                        pool.links, xk)
+    return xk
+
+
+def _seed_from(state, network, od_o, od_d, od_q, od_cls, surcharge, pool):
     """Load the route sets of ``state`` scaled to the new demand into ``pool``."""
     if not isinstance(state, RouteState):
         raise SolverError(
             "a gradient-projection warm start needs an earlier result of method 'gp' "
             "(Frank-Wolfe results carry no routes)")
+    old_cls = (np.zeros(state.origin.size, dtype=np.int64) if state.od_class is None
+               else state.od_class)
+    n_cls = surcharge.shape[0]
+    if old_cls.size and old_cls.max() >= n_cls:
+        raise SolverError(f"warm start has {int(old_cls.max()) + 1} user classes; this "
+                          f"problem has {n_cls}")
     nz = network.n_zones
-    index = np.full((nz, nz), -1, dtype=np.int64)
-    index[state.origin, state.destination] = np.arange(state.origin.size)
-    old = index[od_o, od_d]
+    index = np.full((n_cls, nz, nz), -1, dtype=np.int64)
+    index[old_cls, state.origin, state.destination] = np.arange(state.origin.size)
+    old = index[od_cls, od_o, od_d]
     old_q = np.where(old >= 0, state.demand[np.maximum(old, 0)], 0.0)
     old = np.where(old_q > 0, old, -1)
     scale = np.where(old >= 0, od_q / np.where(old_q > 0, old_q, 1.0), 0.0)
@@ -850,7 +907,7 @@ def _seed_from(state, network, od_o, od_d, od_q, pool):
     n_pool = int(state.path_links.size + idle[2].size)
     pool.reserve(n_paths, n_pool)
     _import(state.od_ptr, state.path_ptr, state.path_links, state.path_flow, *idle, old,
-            scale, *pool.args()[:-1], pool.counters)
+            scale, *pool.args()[:-1], pool.counters, pool.charge, od_cls, surcharge)
 
 
 def _check_same_network(old, net):
@@ -916,13 +973,29 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         raise SolverError("inner_max, inner_ratio and warm_ratio must be non-negative")
     start_time = time.perf_counter()
     n_links = net.n_links
-    od_o, od_d, od_q = net.od_pairs()
+    classes = getattr(problem, "commodities", None)
+    if classes is None:
+        od_o, od_d, od_q = net.od_pairs()
+        od_cls = np.zeros(od_q.size, dtype=np.int64)
+        surcharge = np.zeros((1, n_links))
+    else:
+        od_o, od_d, od_q, od_cls, surcharge = classes
+        od_cls = np.ascontiguousarray(od_cls, dtype=np.int64)
+        surcharge = np.ascontiguousarray(surcharge, dtype=np.float64)
+    multi = classes is not None
+    n_cls = surcharge.shape[0]
     od_o = od_o.astype(np.int64)
     od_d = od_d.astype(np.int64)
     od_q = np.ascontiguousarray(od_q, dtype=np.float64)
     n_od = od_q.size
-    origins, od_row = np.unique(od_o, return_inverse=True)
+    # one shortest-path tree per class and origin: rows in class order
+    rows, od_row = np.unique(od_cls * net.n_zones + od_o, return_inverse=True)
     od_row = od_row.astype(np.int64)
+    origins = rows % net.n_zones
+    row_cls = rows // net.n_zones
+    cls_rows = [slice(int(a), int(b)) for a, b in zip(
+        np.searchsorted(row_cls, np.arange(n_cls)),
+        np.searchsorted(row_cls, np.arange(n_cls), side="right"), strict=True)]
     origin_nodes = sp.zone_nodes[origins]
     od_dnode = sp.zone_nodes[od_d]
     kind = np.array(model.kind)  # writeable, as elsewhere: one compiled version per kernel
@@ -938,16 +1011,19 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     warm = warm_start is not None
     if warm:
         _check_same_network(warm_start.network, net)
-        _seed_from(warm_start.state, net, od_o, od_d, od_q, pool)
+        _seed_from(warm_start.state, net, od_o, od_d, od_q, od_cls, surcharge, pool)
+
+    def export():
+        return pool.export(od_o, od_d, od_q, n_links, od_cls if multi else None)
 
     if n_od == 0:
         return {"flow": x, "iterations": 0, "converged": True,
                 "message": "no demand: every link flow is zero", "history": history,
-                "state": pool.export(od_o, od_d, od_q, n_links)}
+                "state": export(), "class_flow": np.zeros((n_cls, n_links))}
 
     n_nodes = net.n_nodes
-    pred = np.empty((origins.size, n_nodes), dtype=np.int32)
-    zdist = np.empty((origins.size, net.n_zones))
+    pred = np.empty((rows.size, n_nodes), dtype=np.int32)
+    zdist = np.empty((rows.size, net.n_zones))
     od_flat = od_row * net.n_zones + od_d
     mark = np.zeros(n_links, dtype=np.int64)
     mark2 = np.zeros(n_links, dtype=np.int64)
@@ -959,7 +1035,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     # a tree route joins only if cheaper than the OD's routes by more than rounding
     route_tol = min(1e-13, 0.1 * tol)
     n_chunks = max(1, min(numba.get_num_threads(), origins.size))
-    big = origins.size * n_links > _PARALLEL_WORK
+    big = rows.size * n_links > _PARALLEL_WORK
     trees = _trees_parallel if big else _trees_serial
     find_routes = _find_routes_parallel if big else _find_routes_serial
     write_routes = _write_routes_parallel if big else _write_routes_serial
@@ -972,6 +1048,18 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         _sum_flows(od_q, pool.od_first, pool.start, pool.length, pool.flow, pool.next,
                    pool.links, x)
         _refresh_costs(x, kind, par, so, cost, deriv)
+
+    def all_trees():
+        """Trees of every class and origin at the current costs (plus class charges)."""
+        for k_cls, sl in enumerate(cls_rows):
+            if sl.stop > sl.start:
+                c = cost + surcharge[k_cls] if multi else cost
+                trees(origin_nodes[sl], sp.zone_nodes, sp.indptr, sp.adj_link, sp.adj_head,
+                      c, sp.blocked, pred[sl], zdist[sl], n_chunks)
+
+    def charged():
+        """Total class charges of the route flows (zero with a single class)."""
+        return _charge_total(pool.od_first, pool.next, pool.flow, pool.charge) if multi else 0.0
 
     def jumped(accel, excess):
         """After a full pass: True if ``accel`` moved the flows (costs then refreshed)."""
@@ -992,7 +1080,8 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
                                  pool.counters, mark, mark2, keep, od_excess,
-                                 0.0 if full else threshold, pool.cost, max_idle)
+                                 0.0 if full else threshold, pool.cost, max_idle,
+                                 pool.charge)
             was_full = full
             if first < 0:
                 first = excess
@@ -1011,13 +1100,13 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     prev_gap = np.inf
     while True:
         load()
-        trees(origin_nodes, sp.zone_nodes, sp.indptr, sp.adj_link, sp.adj_head, cost,
-               sp.blocked, pred, zdist, n_chunks)
+        all_trees()
         od_dist = np.take(zdist, od_flat)  # 2-d fancy indexing is far slower
         if k == 0 and not np.isfinite(od_dist).all():
             problem.all_or_nothing(cost)  # raises NetworkError naming the pairs
         sptt = float(np.sum(od_dist * od_q))  # a BLAS dot may wake its thread pool
-        tstt = float(x @ cost)
+        charge_total = charged()
+        tstt = float(x @ cost) + charge_total
         # OD pairs without routes yet (cold start, or new pairs in a warm start) have no
         # flow, so the gap of the partial loading means nothing
         loaded = k > 0 or not (pool.od_first < 0).any()
@@ -1026,7 +1115,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         if k > 0 or np.isfinite(gap):
             history["iteration"].append(k)
             history["relative_gap"].append(gap)
-            history["objective"].append(problem.objective_value(x))
+            history["objective"].append(problem.objective_value(x) + charge_total)
             history["wall_time"].append(elapsed)
         if gap <= tol:
             converged = True
@@ -1056,7 +1145,7 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         k += 1
         excess_start = max(tstt - sptt, 0.0)
         _needs_route(od_row, od_d, zdist, cost, pool.od_first, pool.start, pool.length,
-                     pool.next, pool.links, route_tol, need)
+                     pool.next, pool.links, route_tol, need, pool.charge)
         find_routes(need, od_row, od_dnode, sp.tail, pred, pool.od_first, pool.start,
                     pool.length, pool.hash, pool.next, pool.links, n_chunks, new_len,
                     new_hash)
@@ -1070,7 +1159,8 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         write_routes(new_len, new_at, od_row, od_dnode, sp.tail, pred, pool.links, n_chunks)
         pool.counters[_POOL_USED] += n_links_new
         _column_pass(new_len, new_at, new_hash, od_q, x, kind, par, so, cost, deriv,
-                     *pool.args(), mark, mark2, keep, od_excess, pool.cost, max_idle)
+                     *pool.args(), mark, mark2, keep, od_excess, pool.cost, max_idle,
+                     pool.charge, od_cls, surcharge)
         # pairs whose excess is a negligible share of the total wait for the next pass
         threshold = 0.1 * ratio * excess_start / n_od
         # in exhaustive mode (slow progress) wide passes visit every pair with routes
@@ -1081,7 +1171,8 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
             excess = _inner_pass(x, kind, par, so, cost, deriv, pool.od_first, pool.start,
                                  pool.length, pool.flow, pool.next, pool.links,
                                  pool.counters, mark, mark2, keep, od_excess,
-                                 wide if full else threshold, pool.cost, max_idle)
+                                 wide if full else threshold, pool.cost, max_idle,
+                                 pool.charge)
             was_full = full
             if excess <= ratio * excess_start:
                 if full:
@@ -1103,5 +1194,6 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         "converged": converged,
         "message": message,
         "history": history,
-        "state": pool.export(od_o, od_d, od_q, n_links),
+        "state": export(),
+        "class_flow": _class_flows(n_cls, n_links, od_cls, pool) if multi else x.copy()[None, :],
     }

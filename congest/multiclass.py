@@ -12,9 +12,14 @@ in the stacked class flows (Dafermos 1972)::
 
     min  sum_a integral_0^{X_a} t_a(u) du + sum_k sum_a (fixed_a + 60 toll_a / VOT_k) x_ak
 
-whose gradient with respect to ``x_k`` is ``c_k``. :func:`solve_multiclass` runs the
-Frank-Wolfe family of :mod:`congest._frank_wolfe` on that stacked problem: each
-iteration is one all-or-nothing pass per class on its own costs.
+whose gradient with respect to ``x_k`` is ``c_k``. :func:`solve_multiclass` solves it by
+default with the route-based gradient projection of :mod:`congest._gradient_projection`
+(method ``"gp"``): every class and OD pair keeps its own routes, each route carrying the
+class's constant charge, and one iteration builds one shortest-path tree per class and
+origin; it reaches relative gaps of 1e-10 and below, as for a single class. The
+Frank-Wolfe family of :mod:`congest._frank_wolfe` (``"bfw"``, ``"cfw"``, ``"fw"``,
+``"msa"``) runs on the stacked flows instead, one all-or-nothing pass per class and
+iteration.
 
 Gap (common practice, summed over classes, in generalized minutes)::
 
@@ -34,6 +39,7 @@ References
 
 from __future__ import annotations
 
+import dataclasses
 import importlib
 import time as _time
 import warnings
@@ -43,16 +49,17 @@ from types import SimpleNamespace
 import numpy as np
 
 from .costs import CostModel
-from .equilibrium import _no_path_message, conservation_error, relative_gap
+from .equilibrium import Problem, _no_path_message, conservation_error, relative_gap
 from .exceptions import ConvergenceWarning, NetworkError, SolverError
 from .paths import ShortestPaths
 
 __all__ = ["UserClass", "MultiClassEquilibrium", "solve_multiclass", "ClassImpacts",
            "class_impacts", "MULTICLASS_METHODS"]
 
-#: Methods of :func:`solve_multiclass` -> function of :mod:`congest._frank_wolfe`.
-MULTICLASS_METHODS = {"msa": "solve_msa", "fw": "solve_fw", "cfw": "solve_cfw",
-                      "bfw": "solve_bfw"}
+#: Methods of :func:`solve_multiclass` -> function of :mod:`congest._frank_wolfe` (or of
+#: :mod:`congest._gradient_projection` for ``"gp"``).
+MULTICLASS_METHODS = {"gp": "solve_gp", "msa": "solve_msa", "fw": "solve_fw",
+                      "cfw": "solve_cfw", "bfw": "solve_bfw"}
 
 
 @dataclass(frozen=True)
@@ -152,6 +159,30 @@ class _StackedProblem:
         return flows.ravel(), sptt, self.last_od_cost
 
 
+class _CommodityProblem(Problem):
+    """The multi-class program in the shape :func:`solve_gp` expects.
+
+    One commodity per class and OD pair with demand; link costs are travel times only
+    (the network's fixed costs and all tolls are each class's constant charges).
+    """
+
+    def __init__(self, stacked):
+        net = stacked.base
+        model = dataclasses.replace(stacked.model, constant=np.zeros(net.n_links))
+        super().__init__(net, "ue", model=model, paths=stacked.paths)
+        od_o, od_d, od_q = net.od_pairs()
+        k = stacked.k
+        shares = np.array([float(c.share) for c in stacked.classes])
+        self.commodities = (np.tile(od_o, k), np.tile(od_d, k),
+                            (shares[:, None] * od_q[None, :]).ravel(),
+                            np.repeat(np.arange(k), od_q.size), stacked.constants)
+
+    def all_or_nothing(self, cost):
+        # reached only to name OD pairs without a path, which no class can reach
+        return Problem(self.network, "ue", model=self.model,
+                       paths=self.paths).all_or_nothing(cost)
+
+
 @dataclass(frozen=True, eq=False)
 class MultiClassEquilibrium:
     """Result of :func:`solve_multiclass`.
@@ -180,6 +211,8 @@ class MultiClassEquilibrium:
     history : dict of str to ndarray
     od_cost : ndarray of shape (n_classes, n_zones, n_zones)
     method : str
+    state : RouteState or None
+        Routes of every class and OD pair (method ``"gp"``), for warm starts.
     """
 
     network: object
@@ -198,7 +231,8 @@ class MultiClassEquilibrium:
     conservation_error: float
     history: dict = field(repr=False)
     od_cost: np.ndarray = field(repr=False)
-    method: str = "bfw"
+    method: str = "gp"
+    state: object = field(default=None, repr=False)
 
     @property
     def vehicle_hours(self) -> float:
@@ -237,8 +271,9 @@ class MultiClassEquilibrium:
         return pd.DataFrame(rows).set_index("class")
 
 
-def solve_multiclass(net, classes, *, toll_money=None, method="bfw", tol=1e-6,
-                     max_iter=None, time_limit=None, callback=None) -> MultiClassEquilibrium:
+def solve_multiclass(net, classes, *, toll_money=None, method="gp", tol=1e-10,
+                     max_iter=None, time_limit=None, callback=None,
+                     warm_start=None) -> MultiClassEquilibrium:
     """Multi-class user equilibrium with class values of time.
 
     Parameters
@@ -250,12 +285,16 @@ def solve_multiclass(net, classes, *, toll_money=None, method="bfw", tol=1e-6,
         Shares summing to 1.
     toll_money : array_like of shape (n_links,), optional
         Money per vehicle added to the network's tolls.
-    method : {"bfw", "cfw", "fw", "msa"}, default "bfw"
-        Direction finder of the Frank-Wolfe loop (:mod:`congest._frank_wolfe`).
-    tol : float, default 1e-6
+    method : {"gp", "bfw", "cfw", "fw", "msa"}, default "gp"
+        Route-based gradient projection, or a direction finder of the Frank-Wolfe loop
+        (:mod:`congest._frank_wolfe`; these reach about 1e-6 in reasonable time).
+    tol : float, default 1e-10
         Target relative gap.
     max_iter, time_limit, callback
         As for :func:`congest.solve`.
+    warm_start : MultiClassEquilibrium, optional
+        An earlier ``"gp"`` result on the same network with the same classes (e.g. the
+        untolled one before a toll): its routes are the starting point.
 
     Returns
     -------
@@ -270,7 +309,7 @@ def solve_multiclass(net, classes, *, toll_money=None, method="bfw", tol=1e-6,
 
     Notes
     -----
-    One iteration costs one all-or-nothing pass per class. With a single class (or
+    One iteration costs one shortest-path pass per class. With a single class (or
     all classes at one value of time) the program is the single-class Beckmann program
     and the total flows are its unique solution.
 
@@ -295,16 +334,36 @@ def solve_multiclass(net, classes, *, toll_money=None, method="bfw", tol=1e-6,
     if fname is None:
         raise SolverError(f"Unknown method {method!r}; choose one of "
                           f"{sorted(MULTICLASS_METHODS)}")
-    func = getattr(importlib.import_module("congest._frank_wolfe"), fname)
+    module = "congest._gradient_projection" if method == "gp" else "congest._frank_wolfe"
+    func = getattr(importlib.import_module(module), fname)
     toll = np.zeros(net.n_links) if toll_money is None else np.asarray(toll_money, float)
     if toll.shape != (net.n_links,) or not np.isfinite(toll).all():
         raise NetworkError(f"toll_money must be {net.n_links} finite values")
     problem = _StackedProblem(net, classes, toll)
+    least = problem.model.time(np.zeros(net.n_links))[None, :] + problem.constants
+    if net.n_links and least.min() < 0.0:
+        j, i = np.unravel_index(int(np.argmin(least)), least.shape)
+        raise NetworkError(
+            f"link {net.link_ids[i]} has a negative generalized cost at zero volume for "
+            f"class {classes[j].name!r} ({least[j, i]:.6g} min); a rebate may not exceed "
+            "the link's free-flow time and fixed cost")
+    if warm_start is not None:
+        if method != "gp" or getattr(warm_start, "state", None) is None:
+            raise SolverError("a multi-class warm start needs method 'gp' and an earlier "
+                              "'gp' result")
+        if len(warm_start.classes) != len(classes):
+            raise SolverError(f"warm start has {len(warm_start.classes)} classes; this "
+                              f"problem has {len(classes)}")
     start = _time.perf_counter()
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConvergenceWarning)
-        raw = func(problem, tol=tol, max_iter=max_iter, time_limit=time_limit,
-                   warm_start=None, callback=callback)
+        if method == "gp":
+            raw = func(_CommodityProblem(problem), tol=tol, max_iter=max_iter,
+                       time_limit=time_limit, warm_start=warm_start, callback=callback)
+            raw["flow"] = raw.pop("class_flow").ravel()
+        else:
+            raw = func(problem, tol=tol, max_iter=max_iter, time_limit=time_limit,
+                       warm_start=None, callback=callback)
     wall = _time.perf_counter() - start
     xs = np.maximum(problem.split(raw["flow"]), 0.0)
     grad = problem.gradient(xs.ravel())
@@ -332,7 +391,7 @@ def solve_multiclass(net, classes, *, toll_money=None, method="bfw", tol=1e-6,
         iterations=int(raw["iterations"]), wall_time=wall, converged=converged,
         message=message, conservation_error=float(cons),
         history={k: np.asarray(v) for k, v in raw.get("history", {}).items()},
-        od_cost=arrays[4], method=method,
+        od_cost=arrays[4], method=method, state=raw.get("state"),
     )
 
 
@@ -359,7 +418,7 @@ class ClassImpacts:
     revenue_money: float
 
 
-def class_impacts(net, classes, toll_money, *, method="bfw", tol=1e-6,
+def class_impacts(net, classes, toll_money, *, method="gp", tol=1e-10,
                   max_iter=None) -> ClassImpacts:
     """Per-class effect of added money tolls, against the same network without them.
 
@@ -377,8 +436,10 @@ def class_impacts(net, classes, toll_money, *, method="bfw", tol=1e-6,
     ClassImpacts
     """
     base = solve_multiclass(net, classes, method=method, tol=tol, max_iter=max_iter)
+    # the tolled equilibrium starts from the untolled routes (same network and classes)
     tolled = solve_multiclass(net, classes, toll_money=toll_money, method=method, tol=tol,
-                              max_iter=max_iter)
+                              max_iter=max_iter,
+                              warm_start=base if method == "gp" else None)
     before = base.class_table()
     after = tolled.class_table()
     table = after[["share", "value_of_time", "trips", "vehicle_hours", "mean_time_min",

@@ -128,3 +128,143 @@ def test_bad_classes():
         solve_multiclass(net, [UserClass("a", 1.0, 10.0)], method="xyz")
     with pytest.raises(NetworkError, match="toll_money"):
         solve_multiclass(net, [UserClass("a", 1.0, 10.0)], toll_money=[1.0])
+
+
+# ------------------------------------------------------- the precise method ("gp")
+def _cvxpy_multiclass(net, classes):
+    """Objective and total link flows of the multi-class program by cvxpy (Clarabel).
+
+    The program of Dafermos (1972): one link-node flow per class and origin, node
+    balance, no path through a third zone; ``sum_a integral t_a(X_a) + sum_k c_k . x_k``
+    with ``c_k = fixed + 60 toll / VOT_k``. Written here independently of congest.
+    """
+    cp = pytest.importorskip("cvxpy")
+    n, m = net.n_nodes, net.n_links
+    inc = np.zeros((n, m))
+    inc[net.head, np.arange(m)] += 1.0
+    inc[net.tail, np.arange(m)] -= 1.0
+    zn = np.asarray(net.zone_nodes)
+    cons, total, linear = [], 0, 0
+    for c in classes:
+        charge = net.fixed_cost + net.toll * 60.0 / c.value_of_time
+        for o in np.flatnonzero(net.demand.sum(axis=1) > 0):
+            f = cp.Variable(m, nonneg=True)
+            b = np.zeros(n)
+            b[zn] += c.share * net.demand[o]
+            b[zn[o]] -= c.share * net.demand[o].sum()
+            cons.append(inc @ f == b)
+            leaving = np.flatnonzero(np.isin(net.tail, np.setdiff1d(zn, [zn[o]])))
+            if leaving.size:
+                cons.append(f[leaving] == 0)
+            total = total + f
+            linear = linear + charge @ f
+    t0, cap = np.asarray(net.free_flow_time), np.asarray(net.period_capacity)
+    alpha, beta = np.asarray(net.alpha), np.asarray(net.beta)
+    terms = [t0 @ total, linear]
+    for bb in np.unique(beta):
+        idx = np.flatnonzero((beta == bb) & (alpha > 0))
+        if idx.size:
+            w = t0[idx] * alpha[idx] * cap[idx] / (bb + 1.0)
+            terms.append(w @ cp.power(cp.multiply(total[idx], 1.0 / cap[idx]), bb + 1.0))
+    prob = cp.Problem(cp.Minimize(sum(terms)), cons)
+    prob.solve(solver=cp.CLARABEL, tol_gap_abs=1e-9, tol_gap_rel=1e-9, tol_feas=1e-9)
+    assert prob.status == cp.OPTIMAL
+    return float(prob.value), np.asarray(total.value)
+
+
+def _tolled_random(seed):
+    rng = np.random.default_rng(seed)
+    net = random_network(rng, zero_alpha=0.2, fixed_cost=True, load=1.2)
+    toll = np.where(rng.random(net.n_links) < 0.4, rng.uniform(0.5, 6.0, net.n_links), 0.0)
+    return net.replace(toll=toll)
+
+
+CLASSES = [UserClass("hurried", 0.3, 45.0), UserClass("steady", 0.5, 15.0),
+           UserClass("thrifty", 0.2, 4.0)]
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_gp_against_cvxpy_on_random_tolled_networks(seed):
+    # reference: the convex program of Dafermos (1972) by a general-purpose conic solver.
+    # Its optimum value is unique, and so are the total volumes on links whose time
+    # strictly increases with volume (strict convexity in those totals)
+    net = _tolled_random(seed)
+    eq = solve_multiclass(net, CLASSES, tol=1e-12)
+    assert eq.converged and eq.relative_gap <= 1e-12 and eq.method == "gp"
+    value, ref_total = _cvxpy_multiclass(net, CLASSES)
+    mine = float(eq.history["objective"][-1])
+    assert mine == pytest.approx(value, rel=1e-7)
+    rising = np.asarray(net.alpha) > 0
+    scale = max(net.total_demand, 1.0)
+    assert_allclose(eq.flow[rising], ref_total[rising], atol=1e-4 * scale)
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_gp_wardrop_conditions_per_class(seed):
+    # Wardrop's first principle per class (Dafermos 1972): every used route of a class
+    # and OD pair costs that class's least generalized cost, to within the gap
+    net = _tolled_random(100 + seed)
+    eq = solve_multiclass(net, CLASSES, tol=1e-12)
+    st = eq.state
+    assert st.od_class is not None
+    cost = eq.class_cost
+    shares = np.array([c.share for c in CLASSES])
+    for i in range(st.origin.size):
+        k, o, d = int(st.od_class[i]), int(st.origin[i]), int(st.destination[i])
+        assert st.demand[i] == pytest.approx(shares[k] * net.demand[o, d], rel=1e-12)
+        routes = range(st.od_ptr[i], st.od_ptr[i + 1])
+        flows = st.path_flow[list(routes)]
+        assert flows.min() >= 0.0 and flows.sum() == pytest.approx(st.demand[i], rel=1e-12)
+        for r in routes:
+            c = cost[k, st.path_links[st.path_ptr[r]:st.path_ptr[r + 1]]].sum()
+            assert c == pytest.approx(eq.od_cost[k, o, d], rel=1e-9)
+    # class link flows are the sums of their route flows, and add up to the totals
+    rebuilt = np.zeros_like(eq.class_flow)
+    for i in range(st.origin.size):
+        for r in range(st.od_ptr[i], st.od_ptr[i + 1]):
+            np.add.at(rebuilt[st.od_class[i]], st.path_links[st.path_ptr[r]:st.path_ptr[r + 1]],
+                      st.path_flow[r])
+    assert_allclose(rebuilt, eq.class_flow, rtol=1e-12, atol=1e-9)
+    assert_allclose(eq.class_flow.sum(axis=0), eq.flow, rtol=1e-12, atol=1e-9)
+    assert eq.conservation_error < 1e-8
+
+
+def test_gp_agrees_with_frank_wolfe_and_warm_start():
+    # two independent methods of the project on one program, and a warm start from
+    # the untolled routes, reach one equilibrium (unique optimum value)
+    net = _tolled_random(7)
+    gp = solve_multiclass(net, CLASSES, tol=1e-12)
+    fw = solve_multiclass(net, CLASSES, method="bfw", tol=1e-7, max_iter=50_000)
+    assert float(fw.history["objective"][-1]) == pytest.approx(
+        float(gp.history["objective"][-1]), rel=1e-6)
+    untolled = solve_multiclass(net.replace(toll=np.zeros(net.n_links)), CLASSES, tol=1e-12)
+    warm = solve_multiclass(net, CLASSES, tol=1e-12, warm_start=untolled)
+    assert warm.converged and warm.relative_gap <= 1e-12
+    rising = np.asarray(net.alpha) > 0
+    assert_allclose(warm.flow[rising], gp.flow[rising], atol=1e-6 * net.total_demand)
+    with pytest.raises(SolverError, match="classes"):
+        solve_multiclass(net, [UserClass("all", 1.0, 10.0)], warm_start=untolled)
+    with pytest.raises(SolverError, match="gp"):
+        solve_multiclass(net, CLASSES, method="bfw", warm_start=untolled)
+
+
+def test_negative_class_cost_is_refused():
+    # a rebate larger than a link's free-flow time makes a negative cost for the class
+    # that values money most: shortest paths would be wrong, so it is an input error
+    net = pigou().replace(toll=[0.0, -1.0])
+    with pytest.raises(NetworkError, match="negative generalized cost.*'poor'"):
+        solve_multiclass(net, [UserClass("rich", 0.5, 600.0), UserClass("poor", 0.5, 6.0)])
+
+
+def test_sioux_falls_classes_without_tolls_reproduce_published_flows():
+    # with no money tolls every class sees the same costs, so the totals are the
+    # single-class UE: the published best-known Sioux Falls flows (LeBlanc, Morlok &
+    # Pierskalla 1975 network; best-known solution from the shared README's source)
+    from conftest import load_reference, reference_ue_flows
+
+    net = load_reference("siouxfalls")
+    ref = reference_ue_flows("siouxfalls")
+    eq = solve_multiclass(net, CLASSES, tol=1e-12)
+    assert eq.relative_gap <= 1e-12
+    big = ref > 1
+    assert_allclose(eq.flow[big], ref[big], rtol=1e-6)

@@ -204,7 +204,7 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, clas
     if classes:
         from ..multiclass import class_impacts
 
-        impacts = class_impacts(net, classes, link_money, tol=max(gap, 1e-7),
+        impacts = class_impacts(net, classes, link_money, tol=gap,
                                 max_iter=max_iter)
         table = impacts.table
         class_out = Path(out).with_name(Path(out).stem + "-classes.csv")

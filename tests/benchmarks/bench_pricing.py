@@ -4,7 +4,9 @@ Run ``python tests/benchmarks/bench_pricing.py [--method gp] [--gap 1e-10]``. Pr
 seconds and ratios; asserts nothing.
 
 Networks: the demo city (networks/quillhaven) and, when the shared reference folder is
-beside the project, Sioux Falls.
+beside the project, Sioux Falls. The last table is the multi-class equilibrium (three
+value-of-time classes, with and without the first-best tolls) by route-based gradient
+projection and by Frank-Wolfe, and gradient projection alone on Chicago Sketch.
 """
 
 from __future__ import annotations
@@ -87,6 +89,49 @@ def main():
         print(f"{name:<12} {sb.tolls_money[0]:>8.3f} {100 * sb.share_of_first_best:>6.1f}% "
               f"{sb.evaluations:>6} {t_w:>8.2f} {per_w:>8.3f} {t_c:>8.2f} {per_c:>8.3f} "
               f"{per_c / per_w:>9.2f}")
+    multiclass_table(rows)
+
+
+def multiclass_table(rows):
+    from congest.multiclass import UserClass, class_impacts, solve_multiclass
+
+    classes = [UserClass("hurried", 0.3, 45.0), UserClass("steady", 0.5, 15.0),
+               UserClass("thrifty", 0.2, 4.0)]
+    print(f"\nmulti-class (3 classes), untolled and with the first-best tolls:\n"
+          f"{'network':<14} {'method':<6} {'target':>7} {'seconds':>8} {'gap untolled':>13} "
+          f"{'gap tolled':>11} {'tolled it':>9}")
+    for name, _, fb, *_ in rows:
+        net = fb.ue.network
+        for method, tol in (("gp", 1e-10), ("bfw", 1e-6)):
+            t = time.perf_counter()
+            imp = class_impacts(net, classes, fb.tolls_money, method=method, tol=tol,
+                                max_iter=20_000)
+            sec = time.perf_counter() - t
+            print(f"{name:<14} {method:<6} {tol:>7.0e} {sec:>8.2f} "
+                  f"{imp.untolled.relative_gap:>13.1e} {imp.tolled.relative_gap:>11.1e} "
+                  f"{imp.tolled.iterations:>9}")
+    try:
+        from conftest import REFERENCE_DIR, load_reference
+    except ImportError:
+        return
+    if not (REFERENCE_DIR / "chicagosketch" / "links.csv").exists():
+        return
+    net = load_reference("chicagosketch")
+    toll = net.fixed_cost * 0.0
+    toll[::50] = 2.0  # 2 money units on every 50th link
+    t = time.perf_counter()
+    base = solve_multiclass(net, classes, tol=1e-10)
+    t_base = time.perf_counter() - t
+    t = time.perf_counter()
+    cold = solve_multiclass(net, classes, toll_money=toll, tol=1e-10)
+    t_cold = time.perf_counter() - t
+    t = time.perf_counter()
+    warm = solve_multiclass(net, classes, toll_money=toll, tol=1e-10, warm_start=base)
+    t_warm = time.perf_counter() - t
+    print(f"Chicago Sketch, gp to 1e-10: untolled {t_base:.2f} s ({base.iterations} it, "
+          f"gap {base.relative_gap:.1e}); tolled cold {t_cold:.2f} s (gap "
+          f"{cold.relative_gap:.1e}), warm from untolled {t_warm:.2f} s (gap "
+          f"{warm.relative_gap:.1e})")
 
 
 if __name__ == "__main__":
