@@ -182,10 +182,11 @@ def test_toll_sensitivity_matches_finite_differences():
 @needs_routes
 def test_gradient_search_reaches_so():
     net = parallel([0.0, 1.0, 2.0], [1.0, 2.0, 1.0], 3.0)
-    sb = second_best(net, [1, 2], tol=1e-12, method="gp", search="gradient")
+    sb = second_best(net, [1, 2], tol=1e-12, method="gp", search="gradient", scan=False)
     assert sb.share_of_first_best == pytest.approx(1.0, abs=1e-8)
     assert_allclose(sb.tolls_minutes, [1.0, 0.5], atol=1e-4)
-    # the derivative saves solves: far fewer than the derivative-free search
+    # the derivative saves solves: far fewer than the derivative-free search (without
+    # the coarse scan, which alone costs up to 18 solves here)
     assert sb.evaluations < 20
 
 
@@ -194,3 +195,22 @@ def test_sensitivity_needs_routes():
     ue = solve(net, tol=1e-8, method="bfw")
     with pytest.raises(SolverError, match="route flows"):
         toll_sensitivity(ue, net, [np.array([1])])
+
+
+def test_wide_bounds_do_not_strand_the_search_on_the_plateau():
+    # t1 = 10 + 0.2 x1 (tolled), t2 = 20 (constant), demand 100. By hand: UE puts 50 on
+    # each (cost 20); SO equates marginal costs, 10 + 0.4 x1 = 20, so x1 = 25, and the
+    # toll 20 - (10 + 0.2 * 25) = 5 minutes reaches it. Any toll of 10 minutes or more
+    # empties link 1 and the system cost is flat (2,000 vehicle-minutes, the UE value)
+    # over nearly all of a wide range, where a search's first points fall.
+    net = parallel([10.0, 20.0], [0.2, 0.0], 100.0)
+    wide = (0.0, 500.0 / 3.0)  # money at 20 per hour: 0 to 500 minutes
+    sb = second_best(net, [1], bounds=wide, tol=TOL)
+    assert sb.tolls_minutes[0] == pytest.approx(5.0, abs=1e-3)
+    assert sb.share_of_first_best == pytest.approx(1.0, abs=1e-6)
+    assert sb.evaluations <= 60
+    # the same with the multi-group search (two groups, the second a dead end)
+    net3 = parallel([10.0, 20.0, 40.0], [0.2, 0.0, 0.0], 100.0)
+    sb3 = second_best(net3, [1, 3], bounds=wide, tol=TOL)
+    assert sb3.tolls_minutes[0] == pytest.approx(5.0, abs=1e-2)
+    assert sb3.share_of_first_best == pytest.approx(1.0, abs=1e-5)
