@@ -475,3 +475,46 @@ def test_network_without_trips_warns(tmp_path):
     assert res.exit_code == 0
     assert "no trips (no trip table found)" in res.stderr
     assert_allclose(pd.read_csv(tmp_path / "o.csv")["volume"], 0.0)
+
+
+def test_first_run_notice(tmp_path, monkeypatch):
+    # an empty numba cache (a first run) is detected in a fresh process ...
+    import os
+    import subprocess
+    import sys
+
+    import congest.cli as cli
+
+    env = dict(os.environ, NUMBA_CACHE_DIR=str(tmp_path / "cache"))
+    probe = [sys.executable, "-c", "from congest.cli import kernels_cached as k; print(k())"]
+    first = subprocess.run(probe, capture_output=True, text=True, env=env, check=True)
+    assert first.stdout.strip() == "False"
+    # ... and is not after a solve has compiled (and cached) the kernels
+    from congest import solve
+
+    solve(_two_routes(), method="gp", tol=1e-8)
+    assert cli.kernels_cached()
+    # at a terminal a first run says why it waits, on standard error; --help does not
+    monkeypatch.setattr(cli, "kernels_cached", lambda: False)
+    monkeypatch.setattr(cli, "_stderr_is_terminal", lambda: True)
+    monkeypatch.setattr(sys, "argv", ["congest", "solve", str(tmp_path / "none")])
+    result = CliRunner().invoke(main, ["solve", str(tmp_path / "none")])
+    assert result.exit_code != 0
+    assert "first run on this machine: compiling" in result.stderr
+    assert "compiling" not in result.stdout
+    monkeypatch.setattr(sys, "argv", ["congest", "solve", "--help"])
+    result = CliRunner().invoke(main, ["solve", "--help"])
+    assert result.exit_code == 0 and "compiling" not in result.output
+    # in a pipe (not a terminal) nothing is said
+    monkeypatch.setattr(cli, "_stderr_is_terminal", lambda: False)
+    monkeypatch.setattr(sys, "argv", ["congest", "solve", str(tmp_path / "none")])
+    result = CliRunner().invoke(main, ["solve", str(tmp_path / "none")])
+    assert "compiling" not in result.output
+
+
+def _two_routes():
+    from congest.network import Network
+
+    return Network(node_ids=[1, 2], tail=[0, 0], head=[1, 1], capacity=1.0,
+                   free_flow_time=[1.0, 2.0], alpha=1.0, beta=1.0, cost_kind=2,
+                   zone_ids=[1, 2], zone_nodes=[0, 1], demand=[[0, 3.0], [0, 0]])

@@ -8,6 +8,8 @@ from __future__ import annotations
 
 import importlib
 import importlib.util
+import os
+import sys
 
 import click
 
@@ -25,6 +27,31 @@ COMMANDS = {
     "report": "report",
     "inspect": "inspect",
 }
+
+
+#: commands that solve equilibria (and so run the compiled kernels)
+SOLVING = frozenset({"solve", "compare", "toll", "learn", "sweep", "plot", "report"})
+
+
+def kernels_cached() -> bool:
+    """False when numba's cache lacks the solver's compiled kernels (a first run).
+
+    Reads where numba keeps each kernel's cache index; any doubt (another numba, no
+    cache) answers True, so the first-run notice is never printed wrongly more than once.
+    """
+    try:
+        from .. import _gradient_projection as gp
+
+        # kernels every solve compiles (the tree twins depend on the network's size)
+        kernels = (gp._equilibrate, gp._column_pass, gp._inner_pass, gp._sum_flows,
+                   gp._needs_route)
+        return all(os.path.exists(k._cache._cache_file._index_path) for k in kernels)
+    except Exception:  # noqa: BLE001 - a notice only
+        return True
+
+
+def _stderr_is_terminal() -> bool:
+    return sys.stderr.isatty()
 
 
 class _LazyGroup(click.Group):
@@ -51,3 +78,10 @@ def main():
     advice, day-to-day learning and demand sweeps. Results are planning-level
     estimates, not for operational control or safety design.
     """
+    ctx = click.get_current_context()
+    asking_help = any(a in ("--help", "-h") for a in sys.argv[1:])
+    # a person at a terminal waits the ~20 s of a first run: say why (never in pipes)
+    if (ctx.invoked_subcommand in SOLVING and not asking_help and _stderr_is_terminal()
+            and not kernels_cached()):
+        click.echo("congest: first run on this machine: compiling the numerical kernels "
+                   "(once, about 20 s; later runs load them)", err=True)
