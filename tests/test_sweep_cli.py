@@ -45,3 +45,21 @@ def test_sweep_bad_levels_are_clear_errors(tmp_path):
         assert res.exit_code == 1 and res.output.startswith("error:"), res.output
     with pytest.raises(InputError, match="start:stop:count"):
         parse_values("1:2", "--levels")
+
+
+def test_worker_timeout_reaches_the_sweep(tmp_path):
+    # the library's worker_timeout (tested on a cluster without workers in
+    # test_sweep.py) is the --worker-timeout option; a real cluster with no worker
+    # for that long reports the unfinished points as failed (exit code 1)
+    from distributed import LocalCluster
+
+    with LocalCluster(n_workers=0, processes=False, protocol="tcp", dashboard_address=":0",
+                      silence_logs=50) as cluster:
+        res = CliRunner().invoke(main, ["sweep", str(PIGOU), "--levels", "0.5,1",
+                                        "--scheduler", cluster.scheduler_address,
+                                        "--worker-timeout", "1", "--no-progress",
+                                        "--out", str(tmp_path / "x.csv")])
+    assert res.exit_code == 1, res.output
+    assert "the Dask cluster had no worker for 1 s" in res.output
+    bad = CliRunner().invoke(main, ["sweep", str(PIGOU), "--worker-timeout", "0"])
+    assert bad.exit_code == 2 and "--worker-timeout" in bad.output

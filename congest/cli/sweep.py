@@ -138,12 +138,18 @@ def summary_lines(result, net, out):
               help="Demand levels per warm-start chain.")
 @click.option("--retries", type=click.IntRange(min=0), default=2, show_default=True,
               help="Reruns of a point whose worker died.")
+@click.option("--worker-timeout", type=click.FloatRange(min=0, min_open=True), default=60.0,
+              show_default=True, metavar="SECONDS",
+              help="Seconds to wait while the cluster has no worker (all died, or none "
+                   "joined a --scheduler); then the unfinished points are reported as "
+                   "failed.")
 @click.option("--progress/--no-progress", default=True, show_default=True,
               help="Show a progress bar.")
 @network_options
 @friendly_errors
 def command(network, levels, toll_scales, advice_shares, scenarios, method, gap, max_iter,
-            out, store, scheduler, workers, chunk, retries, progress, **net_opts):
+            out, store, scheduler, workers, chunk, retries, worker_timeout, progress,
+            **net_opts):
     """Sweep demand levels on NETWORK: UE, SO, price of anarchy, first-best revenue.
 
     Every finished point is saved in the store folder at once; run the same command
@@ -180,7 +186,7 @@ def command(network, levels, toll_scales, advice_shares, scenarios, method, gap,
     kwargs = dict(toll_scales=tolls, advice_shares=shares, scenarios=scenarios,
                   method=method, tol=gap, max_iter=max_iter, store=store,
                   scheduler=scheduler, n_workers=workers, chunk_size=chunk, retries=retries,
-                  callback=callback)
+                  worker_timeout=worker_timeout, callback=callback)
     try:
         if bar is not None:
             with bar:
