@@ -333,4 +333,9 @@ def _route_state(result):
         raise SolverError(
             f"result of method {getattr(result, 'method', '?')!r} keeps no routes; "
             "solve with method='gp' to get route flows")
+    if state.od_class is not None:
+        raise SolverError(
+            "route flows and select-link queries take a single-class result; a multi-class "
+            "result keeps its routes per class in .state (RouteState.od_class) for warm "
+            "starts")
     return state

@@ -268,3 +268,12 @@ def test_sioux_falls_classes_without_tolls_reproduce_published_flows():
     assert eq.relative_gap <= 1e-12
     big = ref > 1
     assert_allclose(eq.flow[big], ref[big], rtol=1e-6)
+
+
+def test_route_queries_refuse_multiclass_results_clearly():
+    from congest.routes import route_flows, select_link
+
+    eq = solve_multiclass(pigou(), [UserClass("a", 0.5, 60.0), UserClass("b", 0.5, 6.0)])
+    for query in (lambda: route_flows(eq), lambda: select_link(eq, [1])):
+        with pytest.raises(SolverError, match="single-class result"):
+            query()
