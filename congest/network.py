@@ -252,6 +252,51 @@ class Network:
         """Flow-independent generalized-cost term per link, minutes."""
         return self.fixed_cost + self.toll_minutes
 
+    @property
+    def connectors(self) -> np.ndarray:
+        """Mask of shape (n_links,): True for zone connectors, False for roads.
+
+        A zone connector joins a zone centroid that stands apart from the roads to the
+        road network. A zone node counts as such a centroid when every link in or out of
+        it has a cost that does not depend on volume (BPR or polynomial with
+        ``alpha = 0`` or ``beta = 0``) and leads to a node that is not a zone; every
+        link at such a centroid is a connector. A zone node with a congestible link, or
+        a link to another zone, is a road node (zones placed on road intersections, as
+        in many textbook and benchmark networks), and none of its links is a connector.
+        A link at a zone node whose ``link_attrs["facility_type"]`` names a connector is
+        one too, whatever its cost. When the rule would make every link a connector
+        there are no roads to set them apart from, and the mask is all False.
+
+        Examples
+        --------
+        >>> from congest.network import Network
+        >>> # zone 1 sits on its road node 0; zone 2 is a centroid (node 2) off node 1
+        >>> net = Network(node_ids=[1, 2, 3], tail=[0, 1, 2], head=[1, 2, 1],
+        ...               capacity=100.0, free_flow_time=1.0, alpha=[0.15, 0.0, 0.0],
+        ...               zone_ids=[1, 2], zone_nodes=[0, 2], demand=[[0, 5], [0, 0]])
+        >>> net.connectors.tolist()
+        [False, True, True]
+        """
+        is_zone = np.zeros(self.n_nodes, dtype=bool)
+        is_zone[self.zone_nodes] = True
+        polynomial_like = np.isin(self.cost_kind, (COST_KINDS["bpr"], COST_KINDS["polynomial"]))
+        steady = polynomial_like & ((self.alpha == 0) | (self.beta == 0))
+        zone_end = is_zone[self.tail] | is_zone[self.head]
+        # any congestible link, or one between two zones, makes its zone ends road nodes
+        road_like = ~steady | (is_zone[self.tail] & is_zone[self.head])
+        ordinary = np.zeros(self.n_nodes, dtype=bool)
+        ordinary[self.tail[road_like]] = True
+        ordinary[self.head[road_like]] = True
+        centroid = is_zone & ~ordinary
+        mask = centroid[self.tail] | centroid[self.head]
+        kind = self.link_attrs.get("facility_type")
+        if kind is not None:
+            named = np.array(["connector" in str(v).lower() for v in kind], dtype=bool)
+            mask |= named & zone_end
+        if mask.all():
+            mask[:] = False
+        return mask
+
     def node_index(self, node_id) -> int:
         """Index of the node with user id ``node_id``."""
         idx = self._node_lookup.get(int(node_id))

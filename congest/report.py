@@ -194,7 +194,9 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
         charts.append(Chart("flow-ue", plotting.flow_map(net, ue, **scales),
                             "User equilibrium",
                             "Every driver takes a quickest route. Width shows volume, colour "
-                            "volume over capacity; all flow maps here share both scales."))
+                            "volume over capacity; all flow maps here share both scales, "
+                            "set by the roads (zone connectors are grey dashes, not to "
+                            "scale)."))
         charts.append(Chart("flow-so", plotting.flow_map(net, so, **scales), "System optimum",
                             "Routes that make total travel time least."))
         charts.append(Chart("difference-ue-so",
@@ -206,7 +208,8 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
             charts.append(Chart(
                 "flow-free-flow-advice",
                 plotting.flow_map(net, advice_flow, scenario="free-flow advice to all",
-                                  key_figure=_row_key_figure(table, "free_flow_advice", net),
+                                  key_figure=_row_key_figure(table, "free_flow_advice", net,
+                                                             advice),
                                   **scales),
                 "Advice to all on free-flow routes",
                 "A routing service tells every driver the fastest route on empty roads; "
@@ -270,13 +273,21 @@ def _named(net, i):
     return f" ({name})" if name and name.lower() != "nan" else ""
 
 
-def _row_key_figure(table, key, net):
+def _connector_note(net):
+    n = int(net.connectors.sum())
+    return f" ({n:,} of them zone connectors)" if n else ""
+
+
+def _row_key_figure(table, key, net, links):
+    """Subtitle of a scenario's flow map; like the map's own, it counts road links only."""
+    from .plotting._maps import _over_capacity
+
     if key not in table.index:
         return None
     row = table.loc[key]
+    over = _over_capacity(links["volume_capacity"].to_numpy(float), ~net.connectors)
     return (f"{row['vehicle_hours']:,.0f} vehicle-hours  ·  mean trip "
-            f"{row['mean_trip_time_min']:.1f} min  ·  {int(row['links_over_capacity']):,} of "
-            f"{net.n_links:,} links over capacity")
+            f"{row['mean_trip_time_min']:.1f} min  ·  {over}")
 
 
 # ------------------------------------------------------------------ writing
@@ -314,7 +325,8 @@ def _key_findings(report):
     fb = report.comparison.results["first_best"]
     table = report.comparison.table
     lines = [
-        f"{net.name}: {net.n_zones:,} zones, {net.n_nodes:,} nodes, {net.n_links:,} links, "
+        f"{net.name}: {net.n_zones:,} zones, {net.n_nodes:,} nodes, {net.n_links:,} links"
+        f"{_connector_note(net)}, "
         f"{net.total_demand:,.0f} trips in {net.period_hours:g} h.",
         f"Price of anarchy {fb.price_of_anarchy:.4f}: selfish routing costs "
         f"{100 * (fb.price_of_anarchy - 1):.1f}% more than the system optimum "

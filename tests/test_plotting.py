@@ -267,7 +267,11 @@ def test_big_network_gets_thin_lines():
     fig_small = flow_map(small, rng.uniform(0, 2000, small.n_links))
     w_big = layer(fig_big, "links").get_linewidths()
     w_small = layer(fig_small, "links").get_linewidths()
-    assert len(layer(fig_big, "links").get_segments()) == big.n_links
+    # roads in the links layer, the generator's zone connectors in their own
+    n_roads = int(np.sum(~big.connectors))
+    assert 0 < n_roads < big.n_links
+    assert len(layer(fig_big, "links").get_segments()) == n_roads
+    assert len(layer(fig_big, "connectors").get_segments()) == big.n_links - n_roads
     assert max(w_big) < max(w_small)
     assert max(w_big) <= 4.0
 

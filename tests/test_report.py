@@ -256,3 +256,35 @@ def test_cli_plot_errors_are_one_line(folder, tmp_path):
                                "--out", str(tmp_path / "x.png")])
     assert res.exit_code == 1 and "999999" in res.output
     assert not (tmp_path / "x.png").exists()
+
+
+def test_flow_maps_are_scaled_by_the_roads_not_the_connectors(report, city):
+    from congest.plotting import MAP_LAYERS, flow_map
+
+    def drawn(fig, name):
+        (lc,) = [c for ax in fig.axes for c in ax.collections
+                 if c.get_gid() == MAP_LAYERS[name]]
+        return lc
+
+    conn = city.connectors
+    fb = report.comparison.results["first_best"]
+    advice = report.comparison.links["free_flow_advice"]
+    flows = [fb.ue.flow, fb.so.flow, advice["volume"].to_numpy(float)]
+    road_top = max(float(f[~conn].max()) for f in flows)
+    # the town's connectors carry more than any road: a scale that counted them would
+    # draw every road thinner
+    assert max(float(f[conn].max()) for f in flows) > road_top
+    road_vc = max(float((f / city.period_capacity)[~conn].max()) for f in flows)
+    vc_top = float(np.clip(np.ceil(road_vc * 4.0) / 4.0, 1.0, 2.0))
+    charts = {c.name: c.figure for c in report.charts}
+    expected = drawn(flow_map(city, fb.ue, volume_max=road_top, vc_max=vc_top), "links")
+    got = drawn(charts["flow-ue"], "links")
+    np.testing.assert_allclose(got.get_linewidths(), expected.get_linewidths())
+    np.testing.assert_allclose(got.get_colors(), expected.get_colors())
+    for name in ("flow-ue", "flow-so", "flow-free-flow-advice", "difference-ue-so",
+                 "tolls"):
+        assert len(drawn(charts[name], "connectors").get_segments()) == int(conn.sum())
+    sub = next(t.get_text() for t in charts["flow-free-flow-advice"].texts
+               if t.get_gid() == "congest-subtitle")
+    over = int(np.sum(advice["volume_capacity"].to_numpy(float)[~conn] > 1.0))
+    assert sub.endswith(f"{over} of {int(np.sum(~conn))} road links over capacity")

@@ -4,9 +4,11 @@ Every map shares one frame: the network drawn as straight lines between node
 coordinates, the two directions of a two-way road drawn side by side (each to the right
 of its direction of travel, as traffic keeps right), line width growing with the mapped
 quantity, colour from a perceptually uniform colour map with its colour bar, a width key,
-zone centroids, a scale bar and a note on the coordinate system. Links go into one
-``LineCollection`` per layer so that networks of thousands of links draw in well under a
-second.
+zone centroids, a scale bar and a note on the coordinate system. Zone connectors (see
+:attr:`congest.network.Network.connectors`) are not roads: they are drawn as thin grey
+dashes of one width, in a layer of their own, and no width or colour scale counts them.
+Links go into one ``LineCollection`` per layer so that networks of thousands of links
+draw in well under a second.
 
 References
 ----------
@@ -43,12 +45,15 @@ MAP_LAYERS = {
     "context": "congest-context",
     "selected": "congest-selected",
     "zones": "congest-zones",
+    "connectors": "congest-connectors",
 }
 
 _HAIRLINE = 0.25  # points: the thinnest line drawn, so empty links stay visible
 _INK = "#1f2a36"
 _MUTED = "#5b6672"
 _CONTEXT = "#c9ced4"
+#: zone connectors: one thin width, mid grey (lighter ink than any road), dashed
+_CONNECTOR_STYLE = {"linewidths": 0.65, "colors": "#a3aab2", "linestyles": (0, (2.6, 1.8))}
 _OBJECTIVE_NAMES = {"ue": "user equilibrium", "so": "system optimum"}
 
 
@@ -201,7 +206,10 @@ class _Frame:
         n = np.int64(net.n_nodes)
         keys = net.tail * n + net.head
         self.two_way = np.isin(net.head * n + net.tail, keys)
-        positive = length[length > 0]
+        #: zone connectors, drawn apart from the roads and left out of every scale
+        self.connector = net.connectors
+        self.road = ~self.connector
+        positive = length[(length > 0) & self.road]
         median_pt = (np.median(positive) if positive.size else span) / self.units_per_point
         #: widest line, points: thin enough that both directions fit on a short link
         self.max_width = float(np.clip(0.16 * median_pt, 0.8, 6.0))
@@ -215,15 +223,16 @@ class _Frame:
 
     # geometry -------------------------------------------------------------
     def segments(self, widths=None, *, gap=0.4):
-        """Segments of shape (n_links, 2, 2); two-way links moved right of travel.
+        """Segments of shape (n_links, 2, 2); two-way roads moved right of travel.
 
         Each direction of a two-way road sits half its own width plus ``gap`` points
         off the road's centre line, so the pair never overlaps whatever the widths;
-        never more than 30% of the link's length.
+        never more than 30% of the link's length. Connectors stay on their centre line
+        (both directions are drawn alike, so one dashed line shows the pair).
         """
         x0, y0, x1, y1, nx, ny, length = self._geom
         half = self.max_width / 2.0 if widths is None else np.asarray(widths) / 2.0
-        offset = np.where(self.two_way, half + gap, 0.0)
+        offset = np.where(self.two_way & self.road, half + gap, 0.0)
         offset = np.minimum(offset * self.units_per_point, 0.3 * length)
         ox, oy = nx * offset, ny * offset
         seg = np.empty((x0.size, 2, 2))
@@ -250,6 +259,24 @@ class _Frame:
                             joinstyle="round", zorder=zorder)
         lc.set_gid(MAP_LAYERS[layer])
         self.ax.add_collection(lc, autolim=False)
+        return lc
+
+    def add_connectors(self, mask=None):
+        """The zone connectors (those in ``mask``, default all) as thin grey dashes."""
+        from matplotlib.collections import LineCollection
+
+        chosen = self.connector if mask is None else self.connector & mask
+        if not chosen.any():
+            return None
+        seg = self.segments()
+        # both directions of a connector run from the same end, so their dashes coincide
+        # (drawn from opposite ends they would fill each other's gaps into a solid line)
+        flip = self.net.tail > self.net.head
+        seg[flip] = seg[flip, ::-1]
+        lc = LineCollection(seg[chosen], capstyle="butt", zorder=1.5, **_CONNECTOR_STYLE)
+        lc.set_gid(MAP_LAYERS["connectors"])
+        self.ax.add_collection(lc, autolim=False)
+        self._connectors_drawn = True
         return lc
 
     def add_zones(self):
@@ -284,7 +311,18 @@ class _Frame:
             w = float(self.widths(np.array([val]), reference)[0])
             kax.plot([0.02, 0.30], [yv, yv], color=color, lw=w, solid_capstyle="butt")
             kax.text(0.36, yv, _fmt(val), fontsize=8, color=_INK, va="center")
-        y_next = (ys[-1] if len(shown) else 0.85) - 0.16
+        return self.add_symbols((ys[-1] if len(shown) else 0.85) - 0.16)
+
+    def add_symbols(self, y_next):
+        """Key entries for the zone connectors and centroids drawn; returns the next y."""
+        kax = self.kax
+        if getattr(self, "_connectors_drawn", False):
+            style = _CONNECTOR_STYLE
+            kax.plot([0.02, 0.30], [y_next, y_next], color=style["colors"],
+                     lw=style["linewidths"], ls=style["linestyles"], solid_capstyle="butt",
+                     gid="congest-key-connector")
+            kax.text(0.36, y_next, "zone connector", fontsize=8, color=_INK, va="center")
+            y_next -= 0.13
         if getattr(self, "_zone_size", None):
             kax.scatter([0.16], [y_next], s=max(self._zone_size, 12.0), marker="o",
                         facecolor="white", edgecolor=_INK, linewidths=0.7)
@@ -346,7 +384,9 @@ class _Frame:
         import textwrap
 
         note = coordinate_note(self.net.crs)
-        text = " ".join(s for s in (note, extra, "Planning-level estimate.") if s)
+        scale = ("Zone connectors are not drawn to scale."
+                 if getattr(self, "_connectors_drawn", False) else "")
+        text = " ".join(s for s in (note, extra, scale, "Planning-level estimate.") if s)
         width = int(self.fig.get_figwidth() * 16.5)  # characters of 7.5 pt text per line
         self.fig.text(0.03, 0.012, textwrap.fill(text, width), fontsize=7.5, color=_MUTED,
                       ha="left", va="bottom", gid="congest-footnote", linespacing=1.3)
@@ -361,12 +401,22 @@ def _link_name(net, i):
     return f" ({name})" if name and name.lower() != "nan" else ""
 
 
-def _key_figures(eq):
-    """Subtitle for one equilibrium: vehicle-hours, mean trip, overloaded links, gap."""
-    over = int(np.sum(eq.volume_capacity > 1.0))
+def _key_figures(eq, road):
+    """Subtitle for one equilibrium: vehicle-hours, mean trip, overloaded roads, gap."""
     return (f"{eq.vehicle_hours:,.0f} vehicle-hours  ·  mean trip {eq.mean_trip_time:.1f} min  ·"
-            f"  {over:,} of {eq.network.n_links:,} links over capacity  ·"
+            f"  {_over_capacity(eq.volume_capacity, road)}  ·"
             f"  relative gap {eq.relative_gap:.1e}")
+
+
+def _over_capacity(vc, road):
+    """"12 of 394 road links over capacity" (plain "links" when there are no connectors)."""
+    what = "links" if road.all() else "road links"
+    return f"{int(np.sum(vc[road] > 1.0)):,} of {int(road.sum()):,} {what} over capacity"
+
+
+def _road_links(frame):
+    """"links", or "road links" when the map also draws connectors."""
+    return "links" if frame.road.all() else "road links"
 
 
 def _period(net):
@@ -393,13 +443,14 @@ def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
         Subtitle (default: vehicle-hours, mean trip time, links over capacity and the
         relative gap, when ``flow`` is an Equilibrium).
     vc_max : float, optional
-        Top of the colour scale. Default: the largest volume/capacity rounded up to a
-        quarter, at least 1 and at most 2; links above it take the top colour and the
-        colour bar shows an arrow.
+        Top of the colour scale. Default: the largest volume/capacity of a road link
+        rounded up to a quarter, at least 1 and at most 2; links above it take the top
+        colour and the colour bar shows an arrow.
     volume_max : float, optional
-        Volume drawn at full width. Default: the largest volume on this map. Maps meant
-        to be compared side by side (UE against SO, say) need the same ``volume_max``
-        and ``vc_max``, or equal widths stand for different volumes.
+        Volume drawn at full width. Default: the largest volume of a road link on this
+        map. Maps meant to be compared side by side (UE against SO, say) need the same
+        ``volume_max`` and ``vc_max`` (see :func:`flow_scales`), or equal widths stand
+        for different volumes.
     show_zones : bool, default True
     figsize : (float, float), default (10, 8)
         Inches.
@@ -407,15 +458,21 @@ def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
     Returns
     -------
     matplotlib.figure.Figure
-        The links are the collection with gid ``MAP_LAYERS["links"]``, one segment per
-        link in the network's link order.
+        The road links are the collection with gid ``MAP_LAYERS["links"]``, one segment
+        per road link in the network's link order; the zone connectors
+        (:attr:`~congest.network.Network.connectors`), if any, are the
+        ``MAP_LAYERS["connectors"]`` collection of thin grey dashes, one segment per
+        connector, with a "zone connector" entry in the key.
 
     Notes
     -----
     Width is ``w0 + (w1 - w0) * v / v_max`` points with a hairline ``w0`` so that
     unused links stay visible; ``w1`` shrinks with the typical link length on the page,
     so big networks get thin lines. Colours are ``load_colormap()`` applied to
-    ``v / (capacity * period_hours)`` scaled to ``[0, vc_max]``.
+    ``v / (capacity * period_hours)`` scaled to ``[0, vc_max]``. Connectors carry every
+    trip of their zone at a capacity that is a modelling device, so their volumes and
+    volume/capacity say nothing about the roads: they are drawn at one width in grey and
+    set neither scale, and the subtitle counts road links only.
 
     Examples
     --------
@@ -433,21 +490,23 @@ def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
     net = network
     eq = flow if hasattr(flow, "flow") and hasattr(flow, "network") else None
     volume = _as_flow(net, flow, "flow")
+    frame = _Frame(net, figsize=figsize)
+    road = frame.road
     vc = _volume_capacity(net, volume)
-    top = float(np.max(vc)) if vc.size else 0.0
+    top = float(np.max(vc[road], initial=0.0))
     if vc_max is None:
         vc_max = _vc_scale_top(top)
     norm = Normalize(vmin=0.0, vmax=vc_max)
     cmap = load_colormap()
 
-    frame = _Frame(net, figsize=figsize)
-    vref = float(np.max(volume)) if volume.size else 0.0
+    vref = float(np.max(volume[road], initial=0.0))
     if volume_max is not None:
         if not (volume_max > 0) or not math.isfinite(volume_max):
             raise ValueError(f"volume_max must be a positive number, got {volume_max!r}")
         vref = float(volume_max)
     widths = frame.widths(np.minimum(volume, vref), vref)
-    frame.add_links(widths, cmap(norm(vc)))
+    frame.add_connectors()
+    frame.add_links(widths, cmap(norm(vc)), mask=road)
     if show_zones:
         frame.add_zones()
     ticks = np.arange(0.0, vc_max + 1e-9, 0.25 if vc_max <= 1.5 else 0.5)
@@ -462,16 +521,16 @@ def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
     if scenario is None:
         scenario = _OBJECTIVE_NAMES.get(getattr(eq, "objective", None), "volumes")
     if key_figure is None:
-        over = int(np.sum(vc > 1.0))
-        key_figure = (_key_figures(eq) if eq is not None
-                      else f"{over:,} of {net.n_links:,} links over capacity")
+        key_figure = (_key_figures(eq, road) if eq is not None
+                      else _over_capacity(vc, road))
     frame.titles(f"{net.name}: {scenario}", key_figure)
     frame.footnote("Two-way roads: each direction drawn on its right-hand side.")
     return frame.fig
 
 
-def _volume_capacity(net, volume):
-    cap = net.period_capacity
+def _volume_capacity(net, volume, links=slice(None)):
+    """Volume over period capacity (0 where there is no capacity) of ``links``."""
+    cap = net.period_capacity[links]
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(cap > 0, volume / cap, 0.0)
 
@@ -485,10 +544,13 @@ def flow_scales(network, *flows):
     """``vc_max`` and ``volume_max`` for :func:`flow_map` that fit all of ``flows``.
 
     Pass the result to every map of a set (``flow_map(net, ue, **scales)``) so that the
-    maps share one width and one colour scale and compare by eye.
+    maps share one width and one colour scale and compare by eye. Like
+    :func:`flow_map`, it looks at road links only: zone connectors
+    (:attr:`~congest.network.Network.connectors`) set neither scale.
     """
-    volumes = [_as_flow(network, f, "flow") for f in flows]
-    top_vc = max((float(np.max(_volume_capacity(network, v), initial=0.0))
+    road = ~network.connectors
+    volumes = [_as_flow(network, f, "flow")[road] for f in flows]
+    top_vc = max((float(np.max(_volume_capacity(network, v, road), initial=0.0))
                   for v in volumes), default=0.0)
     scales = {"vc_max": _vc_scale_top(top_vc)}
     top_volume = max((float(np.max(v, initial=0.0)) for v in volumes), default=0.0)
@@ -517,8 +579,11 @@ def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), key_figure=Non
     Returns
     -------
     matplotlib.figure.Figure
-        Colour is ``change_colormap()`` on ``B - A`` over ``[-m, m]`` (centred on zero,
-        ``m`` the largest change rounded up); width grows with ``|B - A|``.
+        Road links are the ``MAP_LAYERS["links"]`` collection (in link order), coloured
+        by ``change_colormap()`` on ``B - A`` over ``[-m, m]`` (centred on zero, ``m``
+        the largest change on a road rounded up), width growing with ``|B - A|``. Zone
+        connectors are grey dashes of one width (``MAP_LAYERS["connectors"]``) and set
+        no scale; the counts in the subtitle are of road links.
     """
     from matplotlib.colors import Normalize
 
@@ -526,15 +591,17 @@ def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), key_figure=Non
     a = _as_flow(net, flow_a, "flow_a")
     b = _as_flow(net, flow_b, "flow_b")
     change = b - a
-    biggest = float(np.max(np.abs(change))) if change.size else 0.0
+    frame = _Frame(net, figsize=figsize)
+    road = frame.road
+    biggest = float(np.max(np.abs(change[road]), initial=0.0))
     scale = biggest * 1e-9 + 1e-12
     m = _nice(biggest, fine=True) if biggest > scale else 1.0
     norm = Normalize(vmin=-m, vmax=m)
     cmap = change_colormap()
 
-    frame = _Frame(net, figsize=figsize)
     widths = frame.widths(change, biggest)
-    frame.add_links(widths, cmap(norm(change)))
+    frame.add_connectors()
+    frame.add_links(widths, cmap(norm(change)), mask=road)
     if show_zones:
         frame.add_zones()
     import textwrap
@@ -544,7 +611,7 @@ def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), key_figure=Non
     frame.add_width_key(_samples(biggest), "Size of change,\nvehicles", reference=biggest)
     frame.add_scale_bar()
     tiny = 1e-9 * max(float(np.max(np.abs(a))) if a.size else 0.0, 1.0)
-    n_up, n_down = int(np.sum(change > tiny)), int(np.sum(change < -tiny))
+    n_up, n_down = int(np.sum(change[road] > tiny)), int(np.sum(change[road] < -tiny))
     if key_figure is None:
         parts = []
         if all(hasattr(f, "vehicle_hours") for f in (flow_a, flow_b)):
@@ -552,7 +619,7 @@ def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), key_figure=Non
             pct = 100.0 * dvh / flow_a.vehicle_hours if flow_a.vehicle_hours else 0.0
             change_txt = f"{dvh:+,.0f} ({pct:+.1f}%)".replace("-", "\u2212")
             parts.append(f"vehicle-hours {change_txt}")
-        parts.append(f"{n_up} links gain volume, {n_down} lose")
+        parts.append(f"{n_up} {_road_links(frame)} gain volume, {n_down} lose")
         key_figure = "  ·  ".join(parts)
     frame.titles(f"{net.name}: {labels[1]} against {labels[0]}", key_figure)
     frame.footnote()
@@ -581,7 +648,8 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     Returns
     -------
     matplotlib.figure.Figure
-        Untolled links are the grey ``MAP_LAYERS["context"]`` collection; tolled links
+        Untolled roads are the grey ``MAP_LAYERS["context"]`` collection and untolled
+        zone connectors the dashed ``MAP_LAYERS["connectors"]`` one; tolled links
         are the ``MAP_LAYERS["links"]`` collection, coloured by ``toll_colormap()`` over
         ``[0, max toll]``.
     """
@@ -601,7 +669,8 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     frame = _Frame(net, figsize=figsize)
     hair = np.full(net.n_links, _HAIRLINE * 2)
     context = np.tile(np.array([[0.79, 0.81, 0.83, 1.0]]), (net.n_links, 1))
-    frame.add_links(hair, context, layer="context", zorder=1, mask=~tolled)
+    frame.add_links(hair, context, layer="context", zorder=1, mask=~tolled & frame.road)
+    frame.add_connectors(mask=~tolled)
     top = float(amount.max()) if tolled.any() else 1.0
     # a few dear links (a bridge, say) would squeeze every other toll into one colour:
     # the scale then ends at the 95th percentile and the dearer links take its top colour
@@ -624,6 +693,8 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     if volume is not None and vref > 0:
         frame.add_width_key(_samples(vref), f"Volume on tolled links,\nvehicles in the "
                             f"{_period(net)}", reference=vref)
+    else:
+        frame.add_symbols(0.90)
     frame.add_scale_bar()
     k = int(tolled.sum())
     if 0 < k <= label_limit:
