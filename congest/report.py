@@ -244,9 +244,12 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
                                 "Volumes of the trips whose user-equilibrium routes use it."))
     else:
         notes.append("No maps: the network has no node coordinates.")
-    charts.append(Chart("scenarios", plotting.scenario_chart(table),
+    charts.append(Chart("scenarios", plotting.scenario_chart(table, currency=net.currency),
                         "Scenarios side by side",
-                        "Each measure as a percentage of user equilibrium."))
+                        "Each measure as a percentage of user equilibrium (measures that "
+                        "would repeat another's bars are left out)"
+                        + (f", and the toll revenue of each scenario in {net.currency}."
+                           if _any_revenue(table) else ".")))
     runs = {f"{r.method} ({r.objective.upper()})": r for r in (ue, so) if r.history}
     if runs:
         charts.append(Chart("convergence", plotting.convergence_chart(runs, tol=tol),
@@ -265,6 +268,10 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
                             "with day-to-day capacity noise; median and 10-90% band over "
                             "replications; route shares of the busiest OD pair."))
     return charts
+
+
+def _any_revenue(table):
+    return "revenue_money" in table and bool((table["revenue_money"].fillna(0.0) > 0).any())
 
 
 def _named(net, i):

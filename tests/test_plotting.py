@@ -435,7 +435,7 @@ def test_learning_chart_reads_a_simulation():
 def test_scenario_chart_bars_indexed_to_the_baseline():
     table = pd.DataFrame({"scenario": ["UE", "SO", "tolled UE"],
                           "vehicle_hours": [1200.0, 1000.0, 1010.0],
-                          "mean_trip_time_min": [12.0, 10.0, 10.1],
+                          "mean_trip_time_min": [12.0, 10.0, 10.4],
                           "max_volume_capacity": [1.4, 1.1, 1.12]})
     fig = scenario_chart(table)
     ax = fig.axes[0]
@@ -471,6 +471,74 @@ def test_scenario_chart_reads_the_compare_table():
     assert set(bars) == set(table["label"])
     np.testing.assert_allclose(bars["user equilibrium"], 100.0)
     np.testing.assert_allclose(bars["system optimum"], 75.0, rtol=1e-6)
+
+
+def pigou_table(**changes):
+    from congest.scenarios import compare
+
+    # Pigou (Pigou 1920): one constant road and one congestible road
+    pigou = Network(node_ids=[1, 2], tail=[0, 0], head=[1, 1], capacity=1.0,
+                    free_flow_time=[1.0, 0.0], alpha=[0.0, 1.0], beta=[0.0, 1.0],
+                    cost_kind=2, zone_ids=[1, 2], zone_nodes=[0, 1],
+                    demand=[[0, 1], [0, 0]], currency="crowns", **changes)
+    return compare(pigou, tol=1e-10).table
+
+
+def group_heights(ax):
+    """Bar heights of each measure group, one row per measure."""
+    return np.array([[rect.get_height() for rect in c] for c in ax.containers]).T
+
+
+def test_scenario_chart_draws_no_measure_twice():
+    # without fixed charges system cost is vehicle-hours, and with the same trips in
+    # every scenario mean trip time is vehicle-hours over a constant: all three would
+    # draw the same bars
+    table = pigou_table()
+    np.testing.assert_allclose(table["system_cost_hours"], table["vehicle_hours"])
+    fig = scenario_chart(table)
+    ax = fig.axes[0]
+    labels = [t.get_text() for t in ax.get_xticklabels()]
+    assert labels[0] == "Vehicle-hours"
+    assert not any("veh-h" in lbl or "Mean trip" in lbl for lbl in labels)
+    assert len(set(labels)) == len(labels)
+    heights = group_heights(ax)
+    assert len(heights) == len(labels) >= 2
+    for i in range(len(heights)):
+        for j in range(i):
+            assert not np.allclose(heights[i], heights[j]), (labels[i], labels[j])
+    note = text(fig, "congest-footnote")
+    assert "mean trip time and system cost" in note and "vehicle-hours" in note
+    # a fixed charge per link makes system cost a measure of its own
+    charged = pigou_table(fixed_cost=[0.0, 0.5])
+    labels = [t.get_text() for t in scenario_chart(charged).axes[0].get_xticklabels()]
+    assert any("System cost" in lbl for lbl in labels)
+    # measures asked for are drawn as asked
+    ax = scenario_chart(table, metrics=["vehicle_hours", "system_cost_hours"]).axes[0]
+    assert len(ax.get_xticks()) == 2
+
+
+def test_scenario_chart_shows_revenue_beside_the_bars():
+    table = pigou_table()
+    revenue = table["revenue_money"].to_numpy(float)
+    assert (revenue > 0).sum() == 1  # the marginal-cost tolls
+    fig = scenario_chart(table)
+    ax, rax = fig.axes
+    assert "Toll revenue, crowns per period" == rax.get_title(loc="left")
+    bars = list(rax.patches)
+    np.testing.assert_allclose([b.get_width() for b in bars], revenue)
+    names = [t.get_text() for t in rax.get_yticklabels()]
+    assert names == table["label"].tolist()
+    # the revenue panel's colours and swatches are those of the scenarios' bars
+    for bar, swatch, container in zip(bars, (ln for ln in rax.get_lines()
+                                             if ln.get_gid() == "congest-scenario-swatch"),
+                                      ax.containers, strict=True):
+        np.testing.assert_allclose(bar.get_facecolor(), container[0].get_facecolor())
+        np.testing.assert_allclose(matplotlib.colors.to_rgba(swatch.get_color()),
+                                   container[0].get_facecolor())
+    assert ax.get_legend() is None  # the revenue panel names the scenarios
+    # no revenue anywhere: one panel and a legend
+    fig = scenario_chart(table.drop(columns="revenue_money"))
+    assert len(fig.axes) == 1 and fig.axes[0].get_legend() is not None
 
 
 # ------------------------------------------------------------------- output

@@ -180,7 +180,8 @@ def _table_figure(kind, path, *, currency, title, shares):
     if kind == "scenarios":
         if "scenario" in table.columns:
             table = table.set_index("scenario")
-        return plotting.scenario_chart(table, title=title or "Scenarios compared")
+        return plotting.scenario_chart(table, currency=currency,
+                                       title=title or "Scenarios compared")
     raise AssertionError(kind)
 
 
@@ -203,7 +204,8 @@ def _table_figure(kind, path, *, currency, title, shares):
                    "several (--link 157 --link 158).")
 @click.option("--methods", default="fw,bfw,gp", show_default=True,
               help="convergence: comma-separated methods to compare.")
-@click.option("--currency", default=None, help="sweep: currency label of the revenue.")
+@click.option("--currency", default=None,
+              help="sweep, scenarios: currency label of the revenue.")
 @click.option("--shares", "shares", type=click.Path(exists=True, dir_okay=False),
               default=None, help="learning: route-share CSV written by 'congest learn "
                                  "--track'.")

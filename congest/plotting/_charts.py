@@ -22,11 +22,12 @@ PALETTE = ("#23456b", "#c2571a", "#3a8a5c", "#8a3f8f", "#b08d1c", "#4f8fbf", "#7
 _STYLES = ("-", "--", "-.", ":")
 
 
-def _new_figure(figsize, n_cols=1, n_rows=1, *, sharex=False):
+def _new_figure(figsize, n_cols=1, n_rows=1, *, sharex=False, width_ratios=None):
     from matplotlib.figure import Figure
 
     fig = Figure(figsize=figsize)
-    axes = fig.subplots(n_rows, n_cols, sharex=sharex, squeeze=False).ravel()
+    axes = fig.subplots(n_rows, n_cols, sharex=sharex, squeeze=False,
+                        width_ratios=width_ratios).ravel()
     for ax in axes:
         ax.spines[["top", "right"]].set_visible(False)
         for side in ("left", "bottom"):
@@ -356,13 +357,53 @@ SCENARIO_METRICS = {
 SCENARIO_CAP = 250.0
 
 
-def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
-                   title="Scenarios compared", cap=SCENARIO_CAP, figsize=(11.0, 5.8)):
-    """Grouped bar chart of a scenario comparison table, indexed to a baseline.
+def _same_bars(a, b):
+    """True when two rows of percentages would draw the same bars (NaN where NaN)."""
+    a, b = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
+    if not np.array_equal(np.isnan(a), np.isnan(b)):
+        return False
+    ok = ~np.isnan(a)
+    return bool(ok.any()) and bool(np.allclose(a[ok], b[ok], rtol=1e-6, atol=1e-9))
 
-    Each group is one measure; each bar one scenario, its height the measure as a
-    percentage of the baseline scenario (so measures in different units share one
-    axis); the actual value is written on the bar.
+
+def _drop_repeats(index, metrics):
+    """Measures left after dropping those whose bars equal an earlier measure's.
+
+    Returns the kept mapping and, for each kept label, the labels it stands for.
+    """
+    kept, repeats = {}, {}
+    for col, label in metrics.items():
+        twin = next((c for c in kept if _same_bars(index[col], index[c])), None)
+        if twin is None:
+            kept[col] = label
+        else:
+            repeats.setdefault(kept[twin], []).append(label)
+    return kept, repeats
+
+
+def _scenario_key(ax, names):
+    """Colour swatches in front of the scenario names on ``ax``'s y axis."""
+    from matplotlib.transforms import ScaledTranslation, blended_transform_factory
+
+    ax.tick_params(axis="y", length=0, pad=15)
+    shift = ScaledTranslation(-7 / 72, 0, ax.figure.dpi_scale_trans)
+    at = blended_transform_factory(ax.transAxes, ax.transData) + shift
+    for k in range(len(names)):
+        ax.plot([0], [k], marker="s", ms=7, color=PALETTE[k % len(PALETTE)], ls="none",
+                transform=at, clip_on=False, gid="congest-scenario-swatch")
+
+
+def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
+                   currency=None, title="Scenarios compared", cap=SCENARIO_CAP,
+                   figsize=(11.0, 5.8)):
+    """Grouped bar chart of a scenario comparison table, indexed to a baseline, and the
+    toll revenue of each scenario beside it.
+
+    Each group of the main panel is one measure; each bar one scenario, its height the
+    measure as a percentage of the baseline scenario (so measures in different units
+    share one axis); the actual value is written on the bar. When some scenario raises
+    toll revenue (a ``revenue_money`` column), a second panel shows every scenario's
+    revenue in money, which a percentage of an untolled baseline cannot show.
 
     Parameters
     ----------
@@ -371,11 +412,18 @@ def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
         names come from a ``label`` column if present, else ``scenario_column``, else
         the index.
     metrics : mapping of column to label, or sequence of column names, optional
-        Default: those of :data:`SCENARIO_METRICS` present in the table.
+        Default: those of :data:`SCENARIO_METRICS` present in the table, leaving out
+        any whose bars would repeat an earlier one's exactly (mean trip time when every
+        scenario carries the same trips; system cost when the network has no fixed
+        charges, where it equals vehicle-hours); a footnote names what was left out.
+        Measures given here are all drawn.
     baseline : str, optional
         Scenario = 100 (default: user equilibrium if present, else the first row).
     scenario_column : str, optional
         Column holding scenario names.
+    currency : str, optional
+        Currency of the revenue panel (default: ``table.attrs["currency"]``, else
+        "money").
     title : str, default "Scenarios compared"
     cap : float, default 250
         Bars above ``cap`` percent are cut at it and marked with a notch (their value is
@@ -385,7 +433,9 @@ def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
     Returns
     -------
     matplotlib.figure.Figure
-        One BarContainer per scenario, labelled with the scenario's name.
+        ``axes[0]`` holds one BarContainer per scenario, labelled with the scenario's
+        name; ``axes[1]``, when drawn, one horizontal bar of revenue per scenario with
+        the scenario names (and their colours) as its key.
     """
     frame = table.copy()
     if scenario_column is None:
@@ -394,6 +444,7 @@ def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
     if scenario_column is not None:
         frame = frame.set_index(scenario_column)
     frame.index = [str(i) for i in frame.index]
+    chosen = metrics is None
     if metrics is None:
         metrics = {c: lbl for c, lbl in SCENARIO_METRICS.items() if c in frame}
         unit = getattr(table, "attrs", {}).get("length_unit")
@@ -422,7 +473,17 @@ def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
     base = values.loc[baseline]
     with np.errstate(divide="ignore", invalid="ignore"):
         index = 100.0 * values / base.where(base != 0)
-    fig, (ax,) = _new_figure(figsize)
+    repeats = {}
+    if chosen:
+        metrics, repeats = _drop_repeats(index, metrics)
+        values, index = values[list(metrics)], index[list(metrics)]
+    revenue = (frame["revenue_money"].astype(float) if "revenue_money" in frame else None)
+    if revenue is not None and not (revenue.fillna(0.0) > 0).any():
+        revenue = None
+    if revenue is None:
+        fig, (ax,) = _new_figure(figsize)
+    else:
+        fig, (ax, rax) = _new_figure(figsize, n_cols=2, width_ratios=(3.0, 1.0))
     n_s, n_m = len(names), len(metrics)
     width = 0.8 / n_s
     centers = np.arange(n_m)
@@ -456,8 +517,51 @@ def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
                   fontsize=8.5)
     ax.set_ylim(0, tall * 1.3)
     _label(ax, "", f"Percent of {baseline} (= 100)")
-    ax.legend(fontsize=8, frameon=False, loc="upper left", bbox_to_anchor=(1.0, 1.0))
+    if revenue is None:
+        ax.legend(fontsize=8, frameon=False, loc="upper left", bbox_to_anchor=(1.0, 1.0))
+        fig.subplots_adjust(left=0.07, right=0.78, bottom=0.12 if repeats else 0.1)
+    else:
+        if currency is None:
+            currency = getattr(table, "attrs", {}).get("currency") or "money"
+        _revenue_panel(rax, names, revenue.reindex(names).to_numpy(float), currency)
+        fig.subplots_adjust(left=0.07, right=0.97, bottom=0.12 if repeats else 0.1,
+                            wspace=0.62)
     _titles(fig, title, f"{n_s} scenarios  ·  bars as a percentage of {baseline}; the "
             "value in the table's units is written on each bar")
-    fig.subplots_adjust(left=0.07, right=0.78, bottom=0.1)
+    if repeats:
+        notes = [f"{' and '.join(_measure(lbl) for lbl in same)}, whose bars would be "
+                 f"those of {_measure(label)}" for label, same in repeats.items()]
+        fig.text(0.02, 0.012, "Not drawn: " + "; ".join(notes) + ".", fontsize=7.5,
+                 color=_MUTED, ha="left", va="bottom", gid="congest-footnote")
     return fig
+
+
+def _measure(label):
+    """A measure's label inside a sentence: "Mean trip time, min" -> "mean trip time"."""
+    head = label.split(",")[0].strip()
+    return head[:1].lower() + head[1:] if head[1:2].islower() else head
+
+
+def _revenue_panel(ax, names, revenue, currency):
+    """Horizontal bars of each scenario's toll revenue, first scenario on top."""
+    from matplotlib.ticker import FuncFormatter, MaxNLocator
+
+    ys = np.arange(len(names))
+    amount = np.nan_to_num(revenue)
+    ax.barh(ys, amount, 0.62, color=[PALETTE[k % len(PALETTE)] for k in ys], zorder=2)
+    top = float(amount.max())
+    for y, val in zip(ys, revenue, strict=True):
+        text = _fmt(val) if math.isfinite(val) else "n/a"
+        ax.text((val if math.isfinite(val) else 0.0) + top * 0.03, y, text, va="center",
+                ha="left", fontsize=7.5, color=_INK)
+    ax.set_yticks(ys, names, fontsize=8)
+    ax.set_ylim(len(names) - 0.5, -0.5)
+    ax.set_xlim(0, top * 1.45)
+    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:,.0f}"))
+    ax.xaxis.set_major_locator(MaxNLocator(3))
+    ax.grid(False, axis="y")
+    ax.grid(True, axis="x", color="#e3e6ea", lw=0.8)
+    ax.spines["left"].set_visible(False)
+    ax.set_title(f"Toll revenue, {currency} per period", fontsize=9, color=_INK,
+                 loc="left")
+    _scenario_key(ax, names)
