@@ -182,6 +182,15 @@ def test_named_trip_table_must_exist(tmp_path):
         read_gmns(folder)
 
 
+def test_trip_table_named_with_the_default_name_must_exist(tmp_path):
+    # a settings file that names trips.csv (the default name) means the network has
+    # trips: a deleted trips.csv is an error, not a silent zero-demand network
+    folder = make_folder(tmp_path, trips=None, settings={"trips_file": "trips.csv"})
+    with pytest.raises(InputError, match=r"trip table not found \(named by scenario.json\)"):
+        read_gmns(folder)
+
+
+
 def test_unknown_setting_is_an_error(tmp_path):
     with pytest.raises(InputError, match="unknown setting 'period'"):
         read_gmns(make_folder(tmp_path, settings={"period": 2}))

@@ -91,9 +91,12 @@ def _read_config(folder: Path) -> dict:
     return {c: table.text(c)[0] for c in table.columns if table.text(c)[0] != ""}
 
 
-def _read_settings(folder: Path, overrides: dict) -> tuple[dict, Path | None]:
+def _read_settings(folder: Path, overrides: dict) -> tuple[dict, Path | None, set]:
+    """Defaults, the folder's settings file and the overrides, merged; with the file's
+    path (or None) and the keys the file itself names."""
     path = folder / SETTINGS_FILE
     settings = json.loads(json.dumps(DEFAULT_SETTINGS))
+    named = set()
     if path.is_file():
         try:
             given = json.loads(path.read_text(encoding="utf-8"))
@@ -103,6 +106,7 @@ def _read_settings(folder: Path, overrides: dict) -> tuple[dict, Path | None]:
         if not isinstance(given, dict):
             raise InputError("settings file must hold one JSON object", path=path)
         _merge_settings(settings, given, path)
+        named = set(given)
     else:
         path = None
     cost_keys = {"cost_kind": "kind", "alpha": "alpha", "beta": "beta"}
@@ -111,7 +115,7 @@ def _read_settings(folder: Path, overrides: dict) -> tuple[dict, Path | None]:
         if key in flat:
             settings["default_cost"][sub] = flat.pop(key)
     _merge_settings(settings, flat, None)
-    return settings, path
+    return settings, path, named
 
 
 def _merge_settings(settings, given, path):
@@ -198,7 +202,7 @@ def read_gmns(folder, **overrides) -> Network:
     folder = Path(folder)
     if not folder.is_dir():
         raise InputError("network folder not found", path=folder)
-    settings, settings_path = _read_settings(folder, overrides)
+    settings, settings_path, named = _read_settings(folder, overrides)
     config = _read_config(folder)
     cost = settings["default_cost"]
 
@@ -320,9 +324,11 @@ def read_gmns(folder, **overrides) -> Network:
                                trips.number("trips", minimum=0, describe="trips"), zone_ids,
                                origin_col="origin_zone", destination_col="destination_zone",
                                trips_col="trips")
-    elif "trips_file" in overrides or (settings_path is not None and settings[
-            "trips_file"] != TRIPS_FILE):
-        raise InputError("trip table not found", path=trips_path)
+    elif "trips_file" in overrides or "trips_file" in named:
+        # named (in the settings file or by the caller) but absent: an error, never a
+        # silent network without trips
+        where = f" (named by {settings_path.name})" if "trips_file" in named else ""
+        raise InputError(f"trip table not found{where}", path=trips_path)
 
     currency = settings["currency"] or config.get("currency") or "money"
     name = settings["name"] or config.get("dataset_name") or folder.resolve().name
