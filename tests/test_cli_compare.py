@@ -128,6 +128,8 @@ def test_toll_second_best_on_the_bridge(two_routes, tmp_path, how):
     (["--on-attribute", "facility_type"], "NAME=VALUE"),
     (["--on-attribute", "colour=red"], "no link attribute 'colour'"),
     (["--on-attribute", "facility_type=tunnel"], "no link has facility_type"),
+    # the message lists the values that exist, so the user can pick one
+    (["--on-attribute", "facility_type=tunnel"], "its values are: bridge, road"),
 ])
 def test_toll_bad_groups(two_routes, tmp_path, args, words):
     result = run(["toll", str(two_routes), *args], tmp_path)
@@ -160,6 +162,33 @@ def test_toll_with_classes(two_routes, tmp_path):
     # toll paid per trip: revenue 99/36 over 2 trips, money = minutes at 60/h
     assert table.loc["all", "toll_change_money"] == pytest.approx(99 / 72, abs=1e-5)
     assert "per class" in result.output
+    # one class at the network's value of time: the class run is the single-class one,
+    # so the first-best tolls reach SO and no contradiction is reported
+    assert "do not reproduce the system optimum" not in result.output
+
+
+def test_toll_with_classes_reports_their_own_totals(two_routes, tmp_path):
+    # two classes around the network's value of time: the first-best tolls, set for one
+    # value of time, leave the multi-class tolled equilibrium above SO, and the summary
+    # gives the class run's own vehicle-hours and revenue beside the single-VOT ones
+    from congest.io import read_network
+    from congest.multiclass import UserClass, class_impacts
+    from congest.pricing import first_best
+
+    out = tmp_path / "fb.csv"
+    result = run(["toll", str(two_routes), "--value-of-time", "60", "--gap", "1e-11",
+                  "--class", "slow:0.5:6", "--class", "fast:0.5:600", "--out", str(out)],
+                 tmp_path)
+    assert result.exit_code == 0, result.output
+    net = read_network(two_routes).replace(value_of_time=60.0)
+    fb = first_best(net, tol=1e-11)
+    imp = class_impacts(net, [UserClass("slow", 0.5, 6.0), UserClass("fast", 0.5, 600.0)],
+                        fb.tolls_money, tol=1e-11)
+    assert imp.tolled.vehicle_hours > fb.so.vehicle_hours * (1 + 1e-6)
+    assert (f"tolled {imp.tolled.vehicle_hours:,.1f} (SO {fb.so.vehicle_hours:,.1f}); "
+            f"revenue {imp.revenue_money:,.2f}") in result.output
+    assert "do not reproduce the system optimum for this class mix" in result.output
+    assert "values of time 6 to 600" in result.output
 
 
 @pytest.mark.parametrize("spec, words", [

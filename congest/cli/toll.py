@@ -48,7 +48,7 @@ def parse_groups(net, on_links, on_attribute):
         name, sep, wanted = str(text).partition("=")
         name, wanted = name.strip(), wanted.strip()
         if not sep or not name or not wanted:
-            raise InputError("--on-attribute takes NAME=VALUE, e.g. facility_type=bridge",
+            raise InputError("--on-attribute takes NAME=VALUE, e.g. facility_type=old_bridge",
                              value=text)
         if name not in net.link_attrs:
             known = ", ".join(sorted(net.link_attrs)) or "none"
@@ -58,7 +58,11 @@ def parse_groups(net, on_links, on_attribute):
 
         mask = _matches(net.link_attrs[name], wanted)
         if not mask.any():
-            raise InputError(f"no link has {name} equal to {wanted!r}", value=text)
+            values = sorted({str(v) for v in net.link_attrs[name]})
+            shown = ", ".join(values[:12]) + (f", ... ({len(values)} values)"
+                                              if len(values) > 12 else "")
+            raise InputError(f"no link has {name} equal to {wanted!r}; its values are: "
+                             f"{shown}", value=text)
         groups.append(net.link_ids[mask].tolist())
     return groups
 
@@ -127,8 +131,9 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, clas
     \b
     Examples:
       congest toll networks/quillhaven
-      congest toll networks/quillhaven --on-attribute facility_type=bridge
-      congest toll networks/quillhaven --on 101,102 --on 205,206 --max-charge 8
+      congest toll networks/quillhaven --on-attribute facility_type=old_bridge
+      congest toll networks/quillhaven --on 157,158 --on 359,360 --on 391,392 --max-charge 8
+      congest toll networks/quillhaven --on-attribute "name=West Ring Bridge"
       congest toll networks/quillhaven --class commuter:0.8:15 --class business:0.2:45
     """
     import pandas as pd
@@ -209,15 +214,29 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, clas
         table = impacts.table
         class_out = Path(out).with_name(Path(out).stem + "-classes.csv")
         written.append((class_out, table, True))
-        lines.append(f"per class (multi-class equilibrium, relative gap "
+        mean_vot = sum(float(c.share) * c.value_of_time for c in classes)
+        vots = sorted({c.value_of_time for c in classes})
+        span = (f"{vots[0]:g}" if len(vots) == 1 else f"{vots[0]:g} to {vots[-1]:g}")
+        lines.append(f"with the classes (values of time {span} {cur}/h, mean {mean_vot:g}; "
+                     f"the figures above are for one value of time, "
+                     f"{net.value_of_time:g} {cur}/h):")
+        so_vh = fb.so.vehicle_hours
+        lines.append(f"  vehicle-hours: untolled {impacts.untolled.vehicle_hours:,.1f}, "
+                     f"tolled {impacts.tolled.vehicle_hours:,.1f} (SO {so_vh:,.1f}); revenue "
+                     f"{impacts.revenue_money:,.2f} {cur}")
+        if not groups and impacts.tolled.vehicle_hours > so_vh * (1 + 1e-6):
+            lines.append("  these tolls do not reproduce the system optimum for this class "
+                         "mix: one money toll per link weighs differently with each class's "
+                         "value of time")
+        lines.append(f"  per class (multi-class equilibrium, relative gap "
                      f"{impacts.tolled.relative_gap:.1e}):")
-        lines.append(f"  {'class':<14}{'trips':>10}{'min/trip':>10}{'toll/trip':>11}"
+        lines.append(f"    {'class':<14}{'trips':>10}{'min/trip':>10}{'toll/trip':>11}"
                      f"{'d min':>9}{'d cost ' + cur:>16}")
         for name, row in table.iterrows():
-            lines.append(f"  {str(name):<14}{row['trips']:>10,.0f}{row['mean_time_min']:>10.2f}"
-                         f"{row['mean_toll_money']:>11.2f}{row['time_change_min']:>+9.2f}"
-                         f"{row['cost_change_money']:>+16.2f}")
-        lines.append("  (d = change against no toll; cost = time at the class's value of "
+            lines.append(f"    {str(name):<14}{row['trips']:>10,.0f}"
+                         f"{row['mean_time_min']:>10.2f}{row['mean_toll_money']:>11.2f}"
+                         f"{row['time_change_min']:>+9.2f}{row['cost_change_money']:>+16.2f}")
+        lines.append("    (d = change against no toll; cost = time at the class's value of "
                      "time plus toll, before any use of the revenue)")
     try:
         for path, data, keep_index in written:
