@@ -34,7 +34,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .costs import CostModel
-from .equilibrium import Equilibrium, Problem, conservation_error, relative_gap, solve
+from .equilibrium import Equilibrium, Problem, conservation_error, default_tol, relative_gap, solve
 from .exceptions import SolverError
 
 __all__ = [
@@ -315,7 +315,7 @@ class AdviceShare:
     selfish_mean_time: float
 
 
-def advice_share(net, share, *, tol=1e-8, method="auto", max_iter=None,
+def advice_share(net, share, *, tol=None, method="auto", max_iter=None,
                  warm_start=None) -> AdviceShare:
     """A share of drivers follow free-flow advice; the rest reach a UE around them.
 
@@ -356,6 +356,7 @@ def advice_share(net, share, *, tol=1e-8, method="auto", max_iter=None,
     >>> round(res.advised_mean_time, 6), round(res.selfish_mean_time, 6)
     (4.0, 2.5)
     """
+    tol = default_tol(method) if tol is None else tol
     share = float(share)
     if not 0.0 <= share <= 1.0:
         raise SolverError(f"advice share must be in [0, 1], got {share!r}")

@@ -31,7 +31,7 @@ from .exceptions import ConvergenceWarning, NetworkError, SolverError
 from .paths import ShortestPaths
 
 __all__ = ["solve", "Equilibrium", "METHODS", "conservation_error", "relative_gap",
-           "Problem"]
+           "Problem", "default_tol", "LINK_BASED"]
 
 #: Method name -> "module:function" implementing it (imported on first use).
 METHODS = {
@@ -238,6 +238,26 @@ class Equilibrium:
         }
 
 
+#: Methods that move link flows (the Frank-Wolfe family); they stall before tight gaps.
+LINK_BASED = ("msa", "fw", "cfw", "bfw")
+
+
+def default_tol(method="auto") -> float:
+    """Relative-gap target when none is given: 1e-10, or 1e-5 for a link-based method.
+
+    One rule for :func:`solve`, :func:`~congest.scenarios.compare`,
+    :func:`~congest.pricing.first_best` and the command line, so one network gives one
+    set of numbers wherever it is computed.
+
+    Examples
+    --------
+    >>> default_tol(), default_tol("gp"), default_tol("bfw")
+    (1e-10, 1e-10, 1e-05)
+    """
+    name = DEFAULT_METHOD if method == "auto" else method
+    return 1e-5 if name in LINK_BASED else 1e-10
+
+
 def _resolve(method):
     name = DEFAULT_METHOD if method == "auto" else method
     target = METHODS.get(name)
@@ -247,7 +267,7 @@ def _resolve(method):
     return name, getattr(importlib.import_module(module), func)
 
 
-def solve(network, *, objective="ue", method="auto", tol=1e-4, max_iter=None,
+def solve(network, *, objective="ue", method="auto", tol=None, max_iter=None,
           time_limit=None, warm_start=None, callback=None, preload=None,
           **options) -> Equilibrium:
     """Solve user equilibrium or system optimum on ``network``.
@@ -259,8 +279,9 @@ def solve(network, *, objective="ue", method="auto", tol=1e-4, max_iter=None,
     method : str, default "auto"
         One of :data:`METHODS` (``"msa"``, ``"fw"``, ``"cfw"``, ``"bfw"``, ...);
         ``"auto"`` picks :data:`DEFAULT_METHOD`.
-    tol : float, default 1e-4
-        Target relative gap.
+    tol : float, optional
+        Target relative gap. Default :func:`default_tol`: 1e-10, or 1e-5 with a
+        link-based method.
     max_iter : int, optional
         Iteration cap (method-specific default). Reaching it warns with
         :class:`~congest.exceptions.ConvergenceWarning` and returns the best result with
@@ -301,6 +322,8 @@ def solve(network, *, objective="ue", method="auto", tol=1e-4, max_iter=None,
     >>> round(float(solve(pigou, objective="so", tol=1e-10).flow[1]), 6)
     0.5
     """
+    if tol is None:
+        tol = default_tol(method)
     if not (tol > 0):
         raise SolverError(f"tol must be positive, got {tol!r}")
     name, func = _resolve(method)

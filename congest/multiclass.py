@@ -49,7 +49,7 @@ from types import SimpleNamespace
 import numpy as np
 
 from .costs import CostModel
-from .equilibrium import Problem, _no_path_message, conservation_error, relative_gap
+from .equilibrium import Problem, _no_path_message, conservation_error, default_tol, relative_gap
 from .exceptions import ConvergenceWarning, NetworkError, SolverError
 from .paths import ShortestPaths
 
@@ -271,7 +271,7 @@ class MultiClassEquilibrium:
         return pd.DataFrame(rows).set_index("class")
 
 
-def solve_multiclass(net, classes, *, toll_money=None, method="gp", tol=1e-10,
+def solve_multiclass(net, classes, *, toll_money=None, method="gp", tol=None,
                      max_iter=None, time_limit=None, callback=None,
                      warm_start=None) -> MultiClassEquilibrium:
     """Multi-class user equilibrium with class values of time.
@@ -288,8 +288,9 @@ def solve_multiclass(net, classes, *, toll_money=None, method="gp", tol=1e-10,
     method : {"gp", "bfw", "cfw", "fw", "msa"}, default "gp"
         Route-based gradient projection, or a direction finder of the Frank-Wolfe loop
         (:mod:`congest._frank_wolfe`; these reach about 1e-6 in reasonable time).
-    tol : float, default 1e-10
-        Target relative gap.
+    tol : float, optional
+        Target relative gap. Default: :func:`congest.equilibrium.default_tol`, 1e-10,
+        or 1e-5 with a link-based method.
     max_iter, time_limit, callback
         As for :func:`congest.solve`.
     warm_start : MultiClassEquilibrium, optional
@@ -329,6 +330,7 @@ def solve_multiclass(net, classes, *, toll_money=None, method="gp", tol=1e-10,
     >>> eq.class_table()["mean_toll_money"].round(6).tolist()
     [5.0, 0.0]
     """
+    tol = default_tol(method) if tol is None else tol
     classes = _check_classes(classes)
     fname = MULTICLASS_METHODS.get(method)
     if fname is None:
@@ -418,7 +420,7 @@ class ClassImpacts:
     revenue_money: float
 
 
-def class_impacts(net, classes, toll_money, *, method="gp", tol=1e-10,
+def class_impacts(net, classes, toll_money, *, method="gp", tol=None,
                   max_iter=None) -> ClassImpacts:
     """Per-class effect of added money tolls, against the same network without them.
 
@@ -435,6 +437,7 @@ def class_impacts(net, classes, toll_money, *, method="gp", tol=1e-10,
     -------
     ClassImpacts
     """
+    tol = default_tol(method) if tol is None else tol
     base = solve_multiclass(net, classes, method=method, tol=tol, max_iter=max_iter)
     # the tolled equilibrium starts from the untolled routes (same network and classes)
     tolled = solve_multiclass(net, classes, toll_money=toll_money, method=method, tol=tol,

@@ -42,7 +42,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .costs import CostModel
-from .equilibrium import solve
+from .equilibrium import default_tol, solve
 from .exceptions import ConvergenceWarning, NetworkError, SolverError
 
 __all__ = [
@@ -313,7 +313,7 @@ def _warm_solve(net, *, warm_start, **kw):
     return solve(net, **kw)
 
 
-def first_best(net, *, tol=1e-8, method="auto", max_iter=None, ue=None, so=None,
+def first_best(net, *, tol=None, method="auto", max_iter=None, ue=None, so=None,
                tolled_from_so=True) -> FirstBest:
     """User equilibrium, system optimum and marginal-cost (first-best) tolls.
 
@@ -322,9 +322,10 @@ def first_best(net, *, tol=1e-8, method="auto", max_iter=None, ue=None, so=None,
     net : Network
         The network as given; its constant costs and tolls are part of the base
         generalized cost.
-    tol : float, default 1e-8
+    tol : float, optional
         Relative-gap target of the three solves. The tolled UE reproduces SO only as
-        well as both are solved.
+        well as both are solved. Default: :func:`congest.equilibrium.default_tol`,
+        1e-10, or 1e-5 with a link-based method.
     method : str, default "auto"
         Equilibrium method (see :func:`congest.solve`).
     max_iter : int, optional
@@ -358,6 +359,7 @@ def first_best(net, *, tol=1e-8, method="auto", max_iter=None, ue=None, so=None,
     >>> round(fb.max_flow_deviation, 6)
     0.0
     """
+    tol = default_tol(method) if tol is None else tol
     kw = {"tol": tol, "method": method, "max_iter": max_iter}
     if ue is None:
         ue = solve(net, objective="ue", **kw)
@@ -454,7 +456,7 @@ class TolledScenario:
     mean_generalized_cost_min: float
 
 
-def apply_toll_plan(net, plan, *, tol=1e-8, method="auto", max_iter=None,
+def apply_toll_plan(net, plan, *, tol=None, method="auto", max_iter=None,
                     warm_start=None) -> TolledScenario:
     """User equilibrium of ``net`` with the charges of ``plan`` added.
 
@@ -473,6 +475,7 @@ def apply_toll_plan(net, plan, *, tol=1e-8, method="auto", max_iter=None,
     -------
     TolledScenario
     """
+    tol = default_tol(method) if tol is None else tol
     tolled_net = plan.apply(net)
     eq = _warm_solve(tolled_net, objective="ue", warm_start=warm_start, tol=tol,
                      method=method, max_iter=max_iter)
@@ -579,7 +582,7 @@ def _groups_of(net, links):
     return tuple(groups)
 
 
-def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="auto",
+def second_best(net, links, *, bounds=None, tol=None, method="auto", search="auto",
                 xtol=1e-4, max_evals=200, solver_max_iter=None, first_best_result=None,
                 warm=True, callback=None, scan=True) -> SecondBest:
     """Tolls on a chosen set of links that minimise system cost under UE response.
@@ -594,9 +597,11 @@ def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="aut
         Toll range in **money** per group (one pair for all groups, or one per group).
         Default: 0 to twice the largest first-best toll on the group's links (or on the
         network, if that is larger than the group's own; at least 1 minute).
-    tol : float, default 1e-8
+    tol : float, optional
         Relative-gap target of every equilibrium solve. The search needs the system
-        cost to be a smooth function of the tolls, so solve tightly.
+        cost to be a smooth function of the tolls, so solve tightly. Default:
+        :func:`congest.equilibrium.default_tol`, 1e-10, or 1e-5 with a link-based
+        method.
     method : str, default "auto"
         Equilibrium method (see :func:`congest.solve`).
     search : {"auto", "bounded", "powell", "nelder-mead", "l-bfgs-b", "gradient"}
@@ -665,6 +670,7 @@ def second_best(net, links, *, bounds=None, tol=1e-8, method="auto", search="aut
        function of several variables without calculating derivatives. The Computer
        Journal 7(2), 155-162.
     """
+    tol = default_tol(method) if tol is None else tol
     from scipy.optimize import minimize, minimize_scalar
 
     if search not in SECOND_BEST_METHODS:

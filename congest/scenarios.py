@@ -43,6 +43,7 @@ import pandas as pd
 
 from .advice import advice_share as _advice_share
 from .advice import free_flow_advice, reactive_advice
+from .equilibrium import default_tol
 from .pricing import apply_toll_plan, first_best, system_cost
 
 __all__ = ["ScenarioComparison", "compare", "TABLE_COLUMNS", "LINK_COLUMNS"]
@@ -131,7 +132,7 @@ def _row(net, label, links, *, vehicle_hours, system_cost_min, revenue, solver_g
     }
 
 
-def compare(net, *, advice_share=0.5, toll_plans=(), tol=1e-8, method="auto",
+def compare(net, *, advice_share=0.5, toll_plans=(), tol=None, method="auto",
             max_iter=None, n_days=60, burn_in=10, response=1.0) -> ScenarioComparison:
     """Compare routing-advice, equilibrium and tolling scenarios on one network.
 
@@ -143,8 +144,10 @@ def compare(net, *, advice_share=0.5, toll_plans=(), tol=1e-8, method="auto",
     toll_plans : sequence of TollPlan, default ()
         User toll plans (see :func:`congest.io.tollplan.read_toll_plan`), each solved
         as a UE with its charges.
-    tol : float, default 1e-8
-        Relative-gap target of every equilibrium solve.
+    tol : float, optional
+        Relative-gap target of every equilibrium solve. Default:
+        :func:`congest.equilibrium.default_tol`, 1e-10, or 1e-5 with a link-based
+        method.
     method : str, default "auto"
         Equilibrium method (see :func:`congest.solve`).
     max_iter : int, optional
@@ -176,6 +179,7 @@ def compare(net, *, advice_share=0.5, toll_plans=(), tol=1e-8, method="auto",
     >>> cmp.table.loc[["user_equilibrium", "system_optimum"], "ratio_to_so"].round(6).tolist()
     [1.333333, 1.0]
     """
+    tol = default_tol(method) if tol is None else tol
     vot = net.value_of_time
     zero = np.zeros(net.n_links)
     rows, links, results = {}, {}, {}

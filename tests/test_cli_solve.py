@@ -247,6 +247,9 @@ def test_method_help_and_default_gap_know_every_method():
     for name in congest.METHODS:
         assert name in METHOD_HELP
     assert set(LINK_BASED) <= set(congest.METHODS)
+    from congest.equilibrium import LINK_BASED as LIBRARY_LINK_BASED
+
+    assert LINK_BASED == LIBRARY_LINK_BASED
     assert default_gap("auto") == default_gap("gp") == 1e-10
     assert default_gap("fw") == 1e-5
 

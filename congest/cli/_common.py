@@ -16,7 +16,8 @@ from ..exceptions import CongestError, ConvergenceWarning
 METHOD_HELP = ("Equilibrium method: auto (gradient projection, gp), gp, or a Frank-Wolfe "
                "variant (msa, fw, cfw, bfw).")
 
-#: Link-based methods: they stall long before a relative gap of 1e-10.
+#: Link-based methods: they stall long before a relative gap of 1e-10 (the same tuple as
+#: ``congest.equilibrium.LINK_BASED``, repeated so ``--help`` imports no solver).
 LINK_BASED = ("msa", "fw", "cfw", "bfw")
 
 #: How ``default_gap`` reads in ``--help``.
@@ -27,13 +28,12 @@ GAP_DEFAULT_HELP = ("Default: 1e-10, or 1e-5 with a link-based method (msa, fw, 
 def default_gap(method):
     """Gap target used when none is given: tight unless the method is link-based.
 
-    One rule for solve, compare, toll and report, so one network gives one set of
-    numbers whichever command computed them.
+    The library's rule (:func:`congest.equilibrium.default_tol`), so one network gives
+    one set of numbers whichever command, or Python call, computed them.
     """
-    from ..equilibrium import DEFAULT_METHOD
+    from ..equilibrium import default_tol
 
-    name = DEFAULT_METHOD if method == "auto" else method
-    return 1e-5 if name in LINK_BASED else 1e-10
+    return default_tol(method)
 
 
 def friendly_errors(func):
