@@ -63,3 +63,20 @@ def test_worker_timeout_reaches_the_sweep(tmp_path):
     assert "the Dask cluster had no worker for 1 s" in res.output
     bad = CliRunner().invoke(main, ["sweep", str(PIGOU), "--worker-timeout", "0"])
     assert bad.exit_code == 2 and "--worker-timeout" in bad.output
+
+
+def test_sweep_cautions_far_above_capacity(tmp_path):
+    # both Pigou links have capacity 1; at demand level 5 the UE puts 1 trip on the
+    # variable link (its cost x reaches the constant 1) and 4 on the constant one:
+    # volume/capacity 4, past where volume-delay curves are fitted
+    out = tmp_path / "pigou.csv"
+    args = ["sweep", str(PIGOU), "--levels", "0.5,5", "--gap", "1e-10",
+            "--scheduler", "serial", "--out", str(out)]
+    res = CliRunner().invoke(main, args)
+    assert res.exit_code == 0, res.output
+    labels = [line.split("  ")[0] for line in res.output.splitlines()]
+    assert "caution" in labels and "volume/capacity reaches 4.0 at demand level 5" in res.output
+    calm = CliRunner().invoke(main, [*args[:3], "0.5,1", *args[4:],
+                                     "--store", str(tmp_path / "calm")])
+    assert calm.exit_code == 0
+    assert "caution" not in [line.split("  ")[0] for line in calm.output.splitlines()]

@@ -76,6 +76,10 @@ def _progress(total, enabled):
     return bar, callback
 
 
+#: Highest link volume/capacity of a sweep above which the summary adds a caution.
+VC_CAUTION = 2.0
+
+
 def summary_lines(result, net, out):
     rows = [("network", f"{net.name}: {net.n_zones} zones, {net.n_links} links, "
                         f"{net.total_demand:,.1f} trips at demand level 1"),
@@ -85,20 +89,30 @@ def summary_lines(result, net, out):
     peak = result.peak()
     table = result.table
     if peak is not None:
-        where = f"demand level {peak['demand_scale']:g}"
+        where = f"demand level {peak['demand_scale']:.4g}"
         for key in ("toll_scale", "advice_share"):
             if key in peak:
-                where += f", {key.replace('_', ' ')} {peak[key]:g}"
+                where += f", {key.replace('_', ' ')} {peak[key]:.4g}"
         rows.append(("peak price of anarchy", f"{peak['price_of_anarchy']:.4f} at {where}"))
         lo = table.loc[table["demand_scale"].idxmin()]
         hi = table.loc[table["demand_scale"].idxmax()]
         rows.append(("price of anarchy at ends",
-                     f"{lo['price_of_anarchy']:.4f} at {lo['demand_scale']:g}, "
-                     f"{hi['price_of_anarchy']:.4f} at {hi['demand_scale']:g}"))
+                     f"{lo['price_of_anarchy']:.4f} at {lo['demand_scale']:.4g}, "
+                     f"{hi['price_of_anarchy']:.4f} at {hi['demand_scale']:.4g}"))
         top = table.loc[table["first_best_revenue"].idxmax()]
         rows.append(("largest first-best revenue",
                      f"{top['first_best_revenue']:,.0f} {net.currency} at demand level "
-                     f"{top['demand_scale']:g}"))
+                     f"{top['demand_scale']:.4g}"))
+        if "ue_max_volume_capacity" in table:
+            worst = table.loc[table["ue_max_volume_capacity"].idxmax()]
+            # common practice: volume-delay curves are fitted near and below capacity;
+            # far above it they extrapolate
+            if worst["ue_max_volume_capacity"] > VC_CAUTION:
+                rows.append(("caution", f"volume/capacity reaches "
+                             f"{worst['ue_max_volume_capacity']:.1f} at demand level "
+                             f"{worst['demand_scale']:.4g}; volume-delay curves are rarely "
+                             f"fitted above about {VC_CAUTION:g}, so treat those rows as "
+                             "indicative"))
         bad = int((~table["ue_converged"].astype(bool)).sum()
                   + (~table["so_converged"].astype(bool)).sum())
         if bad:
