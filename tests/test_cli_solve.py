@@ -521,3 +521,13 @@ def _two_routes():
     return Network(node_ids=[1, 2], tail=[0, 0], head=[1, 1], capacity=1.0,
                    free_flow_time=[1.0, 2.0], alpha=1.0, beta=1.0, cost_kind=2,
                    zone_ids=[1, 2], zone_nodes=[0, 1], demand=[[0, 3.0], [0, 0]])
+
+
+def test_every_command_help_has_examples():
+    # the README promises examples in every command's --help
+    from congest.cli import COMMANDS
+
+    for name in COMMANDS:
+        result = CliRunner().invoke(main, [name, "--help"])
+        assert result.exit_code == 0, name
+        assert "Examples:" in result.output, f"congest {name} --help has no examples"

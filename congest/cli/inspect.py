@@ -156,6 +156,12 @@ def command(network, as_json, **net_opts):
     Reads NETWORK exactly as ``congest solve`` does (same options) and reports what it
     found. Exits with code 1 when a check finds a problem that would stop a solve (OD
     pairs with trips but no path).
+
+    \b
+    Examples:
+      congest inspect networks/quillhaven
+      congest inspect networks/quillhaven --json
+      congest inspect my-links.csv --demand my-od.csv --zones 1-38
     """
     net, layout = load_network(network, **net_opts)
     info = describe(net)
