@@ -31,8 +31,8 @@ def summary_lines(result, net, out):
     """The short summary ``congest solve`` prints, as (label, value) rows."""
     names = {"ue": "user equilibrium (UE)", "so": "system optimum (SO)"}
     rows = [
-        ("network", f"{net.name}: {net.n_zones} zones, {net.n_nodes} nodes, "
-                    f"{net.n_links} links, {_number(net.total_demand)} trips in "
+        ("network", f"{net.name}: {net.n_zones:,} zones, {net.n_nodes:,} nodes, "
+                    f"{net.n_links:,} links, {_number(net.total_demand)} trips in "
                     f"{net.period_hours:g} h"),
         ("objective", names[result.objective]),
         ("method", result.method),
