@@ -106,6 +106,8 @@ def test_toll_first_best(two_routes, tmp_path):
     assert_allclose(frame["toll_money"], frame["toll_min"])
     assert_allclose(frame["tolled_volume"], frame["so_volume"], atol=1e-6)
     assert_allclose(frame["ue_volume"], [1.0, 1.0], atol=1e-6)
+    # the network's own link labels travel with the table
+    assert frame["facility_type"].tolist() == ["road", "bridge"]
 
 
 @pytest.mark.parametrize("how", [["--on", "2"], ["--on-attribute", "facility_type=bridge"]])
@@ -118,6 +120,7 @@ def test_toll_second_best_on_the_bridge(two_routes, tmp_path, how):
     assert "share of the first-best gain recovered: 100.0%" in result.output
     frame = pd.read_csv(out)
     assert frame["link_id"].tolist() == [2]
+    assert frame["facility_type"].tolist() == ["bridge"]
     assert frame["toll_money"].iloc[0] == pytest.approx(0.5, abs=1e-3)
     assert frame["tolled_volume"].iloc[0] == pytest.approx(5 / 6, abs=1e-3)
 

@@ -136,6 +136,7 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, clas
       congest toll networks/quillhaven --on-attribute "name=West Ring Bridge"
       congest toll networks/quillhaven --class commuter:0.8:15 --class business:0.2:45
     """
+    import numpy as np
     import pandas as pd
 
     from ..exceptions import InputError
@@ -157,6 +158,10 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, clas
     cur = net.currency
     ends = {"link_id": net.link_ids, "from_node": net.node_ids[net.tail],
             "to_node": net.node_ids[net.head]}
+    # the network's own link labels, so a reader finds the bridge by its name
+    labels = {k: np.asarray(net.link_attrs[k]) for k in ("name", "facility_type")
+              if k in net.link_attrs}
+    ends.update(labels)
     if not groups:
         link_money = fb.tolls_money
         frame = pd.DataFrame({**ends, "so_volume": fb.so.flow,
@@ -187,6 +192,7 @@ def command(network, on_links, on_attribute, max_charge, search, max_evals, clas
                 rows.append({"group": g + 1, "link_id": int(net.link_ids[i]),
                              "from_node": int(net.node_ids[net.tail[i]]),
                              "to_node": int(net.node_ids[net.head[i]]),
+                             **{k: v[i] for k, v in labels.items()},
                              "toll_min": float(minutes), "toll_money": float(money),
                              "ue_volume": float(fb.ue.flow[i]),
                              "tolled_volume": float(sb.tolled_ue.flow[i]),
