@@ -773,7 +773,7 @@ def second_best(net, links, *, bounds=None, tol=None, method="auto", search="aut
                     grads[key] = toll_sensitivity(fb.ue, net, groups)[0]
                 return grads[key]
         res = minimize(evaluate, x0, method=name, jac=jac, bounds=lo_hi, options=opts)
-        ok, msg = bool(res.success), str(res.message)
+        ok, msg = bool(res.success), _search_message(res.message)
     value, best_tolls, eq = state["best"]
     n_evals = len(trace_cost)
     if n_evals >= max_evals and not ok:
@@ -798,6 +798,16 @@ def second_best(net, links, *, bounds=None, tol=None, method="auto", search="aut
                  "system_cost": np.array(trace_cost)},
         method=search, converged=ok, message=msg, first_best=fb,
     )
+
+
+def _search_message(text):
+    """SciPy's stopping message in words a toll analyst can act on."""
+    text = str(text).strip()
+    if text.upper().startswith("ABNORMAL"):
+        return ("the quasi-Newton search stopped: its line search found no decrease, so "
+                "the system cost is flat or not smooth near these tolls (a toll that moves "
+                "nobody); the best tolls found are kept. search='powell' steps over flats")
+    return text
 
 
 def toll_sensitivity(eq, base, groups):

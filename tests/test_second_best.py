@@ -214,3 +214,12 @@ def test_wide_bounds_do_not_strand_the_search_on_the_plateau():
     sb3 = second_best(net3, [1, 3], bounds=wide, tol=TOL)
     assert sb3.tolls_minutes[0] == pytest.approx(5.0, abs=1e-2)
     assert sb3.share_of_first_best == pytest.approx(1.0, abs=1e-5)
+
+
+def test_search_stopping_messages_are_plain_words():
+    from congest.pricing import _search_message
+
+    assert "line search found no decrease" in _search_message("ABNORMAL: ")
+    assert "powell" in _search_message("ABNORMAL_TERMINATION_IN_LNSRCH")
+    assert _search_message("Optimization terminated successfully.") == (
+        "Optimization terminated successfully.")
