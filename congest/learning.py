@@ -6,7 +6,7 @@ day after day. Each day
 1. the drivers' choices give route flows, route flows give link flows (sparse route-link
    incidence) and link flows give travel times through the network's cost functions,
    optionally with a random capacity factor per link and day (supply noise);
-2. the day is recorded: total travel time, relative gap of the day's flows against
+2. the day is recorded: vehicle-hours, relative gap of the day's flows against
    shortest paths in the *whole* network, distance to the UE link flows, per-driver
    regret, the share of drivers who switched;
 3. drivers receive travel-time estimates, optionally noisy (estimate noise): for every
@@ -45,10 +45,14 @@ taken up by the share of drivers who drove it (the mean-field form of the same r
 
 Randomness comes from one :class:`numpy.random.SeedSequence` spawned into one
 :class:`numpy.random.Generator` per replication, so results depend only on ``seed``
-(not on the number of threads). Replications run together in the compiled kernels,
-which are parallel over replications and OD pairs or drivers; with fewer replications
-than threads, each day's whole-network gap (one shortest-path tree per origin) runs on
-its own thread beside the rest of the day loop.
+(not on the number of threads). Only three things are drawn at random: the capacity
+factors (``supply_noise``), the factors on the estimates (``estimate_noise``) and, with
+``drivers``, who follows advice and which route each driver samples. Without any of them
+the run is deterministic and every replication repeats the first, which
+:func:`simulate` warns about when more than one is asked for. Replications run together
+in the compiled kernels, which are parallel over replications and OD pairs or drivers;
+with fewer replications than threads, each day's whole-network gap (one shortest-path
+tree per origin) runs on its own thread beside the rest of the day loop.
 
 References
 ----------
@@ -70,6 +74,7 @@ References
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 
 import numba
@@ -78,7 +83,8 @@ import numpy as np
 from .costs import CostModel, time_scalar
 from .paths import ShortestPaths, adjacency_costs, iheap_pop, iheap_update
 
-__all__ = ["simulate", "LearningResult", "RULES", "SCHEDULES", "INFORMATION"]
+__all__ = ["simulate", "LearningResult", "draws_at_random", "RULES", "SCHEDULES",
+           "INFORMATION"]
 
 #: Update rules and their codes in the compiled kernels.
 RULES = {"hedge": 0, "logit": 1, "best_response": 2, "smith": 3}
@@ -89,6 +95,19 @@ INFORMATION = ("full", "experience")
 #: Default ``(rate, schedule)`` of each rule.
 DEFAULTS = {"hedge": (10.0, "sqrt"), "logit": (0.3, "constant"),
             "best_response": (0.1, "constant"), "smith": (0.5, "constant")}
+#: How each rule is named in labels and titles.
+RULE_LABELS = {"hedge": "Hedge", "logit": "smoothed logit",
+               "best_response": "inertial best response", "smith": "proportional switching"}
+
+
+def draws_at_random(*, supply_noise=0.0, estimate_noise=0.0, drivers=None) -> bool:
+    """Whether a run with these settings draws anything at random.
+
+    Capacity noise, estimate noise and a finite population of drivers (who sample their
+    routes and whether they follow advice) are the only sources of randomness; without
+    them replications are identical whatever the seed.
+    """
+    return supply_noise > 0 or estimate_noise > 0 or drivers is not None
 
 
 # ------------------------------------------------------------------------- kernels
@@ -429,8 +448,9 @@ class LearningResult:
     ----------
     days : pandas.DataFrame
         One row per day and replication: ``day`` (1-based), ``replication``,
-        ``total_travel_time`` (vehicle-minutes, actual times, constant terms excluded),
-        ``total_cost`` (vehicle-minutes of generalized cost), ``relative_gap`` (of the
+        ``total_vehicle_hours`` (total travel time at the day's actual times, constant
+        terms excluded), ``system_cost_hours`` (total generalized cost, time plus the
+        network's constant terms, vehicle-hours), ``relative_gap`` (of the
         day's flows against shortest paths in the whole network, nominal costs; NaN on
         days skipped by ``gap_every``), ``route_set_gap`` (the same against the
         cheapest route of each set), ``distance_to_ue`` (``||x - x_ue|| / ||x_ue||``),
@@ -439,7 +459,9 @@ class LearningResult:
         number of days so far, minutes per trip; mean weighted by trips, max over
         drivers, or over OD pairs in the continuum), ``advice_regret`` (the same for
         advice followers, mean; NaN without followers),
-        ``switching_share`` (share of trips on another route than the day before).
+        ``switching_share`` (share of trips on another route than the day before),
+        and ``total_travel_time``: the same as ``total_vehicle_hours`` in
+        vehicle-minutes, kept for readers of older tables (the learning chart reads it).
     route_shares : pandas.DataFrame or None
         For the tracked OD pairs: ``day, replication, origin, destination, route, share``.
     summary : pandas.DataFrame
@@ -454,6 +476,9 @@ class LearningResult:
     route_set : RouteSet
     params : dict
         Rule, rate, schedule, noise and the other settings used.
+    ue_vehicle_hours : float
+        Total travel time of the user equilibrium ``ue_flow`` (constant terms excluded,
+        nominal capacities), the reference for ``total_vehicle_hours``.
     """
 
     days: object
@@ -466,11 +491,49 @@ class LearningResult:
     ue_flow: np.ndarray
     route_set: object = field(repr=False)
     params: dict = field(default_factory=dict)
+    ue_vehicle_hours: float = float("nan")
+
+    @property
+    def draws_at_random(self) -> bool:
+        """Whether the run drew anything at random (see :func:`draws_at_random`); if not,
+        its replications are identical."""
+        p = self.params
+        return draws_at_random(supply_noise=p.get("supply_noise", 0.0),
+                               estimate_noise=p.get("estimate_noise", 0.0),
+                               drivers=p.get("drivers"))
+
+    def label(self) -> str:
+        """The run's setting in a few words, for titles: rule, advice, noise, drivers.
+
+        For example ``"Hedge, no advice, capacity noise sd 10%"``; noise is the standard
+        deviation of the mean-1 factor, as a share of the mean (its coefficient of
+        variation).
+        """
+        p = self.params
+        rule = p.get("rule")
+        parts = [RULE_LABELS.get(rule, str(rule))]
+        share = p.get("advice_share", 0.0)
+        parts.append(f"{_percent(share)} follow advice" if share else "no advice")
+        noise = [f"{what} noise sd {_percent(p[key])}"
+                 for what, key in (("capacity", "supply_noise"),
+                                   ("estimate", "estimate_noise")) if p.get(key)]
+        parts += noise or ["no noise"]
+        if p.get("drivers") is not None:
+            parts.append(f"{p['drivers']:,} drivers")
+        return ", ".join(parts)
 
     def overview(self) -> dict:
-        """Key figures across replications (medians; oscillation as a share)."""
+        """Key figures across replications (medians; oscillation as a share).
+
+        ``final_vehicle_hours`` is the median of the last day's total travel time and
+        ``final_vehicle_hours_spread`` its range over replications (largest minus
+        smallest; 0 for one replication). ``draws_at_random`` is False when the
+        replications are identical by construction.
+        """
         s = self.summary
         reached = s["days_to_gap"].dropna()
+        last = self.days[self.days["day"] == self.days["day"].max()]
+        vh = last["total_vehicle_hours"].to_numpy(dtype=float)
         return {
             "rule": self.params.get("rule"),
             "replications": int(len(s)),
@@ -483,7 +546,16 @@ class LearningResult:
             "final_mean_regret": float(s["final_mean_regret"].median()),
             "oscillating_share": float(s["oscillates"].mean()),
             "period": int(s["period"].mode().iloc[0]) if len(s) else 0,
+            "final_vehicle_hours": float(np.median(vh)),
+            "final_vehicle_hours_spread": float(vh.max() - vh.min()),
+            "ue_vehicle_hours": float(self.ue_vehicle_hours),
+            "draws_at_random": self.draws_at_random,
         }
+
+
+def _percent(share):
+    """0.1 -> "10%", 0.125 -> "12.5%"."""
+    return f"{100 * share:.3g}%"
 
 
 # ------------------------------------------------------------------------ simulate
@@ -553,6 +625,9 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
         UE solution of ``network`` (default ``solve(network, tol=ue_tol)``).
     ue_tol : float, default 1e-8
     replications : int, default 1
+        Independent runs, each with its own random stream. They differ only when the run
+        draws something at random (``supply_noise``, ``estimate_noise`` or ``drivers``);
+        otherwise they are identical and a warning says so.
     seed : int, SeedSequence or None
     track : sequence of (origin id, destination id), default ()
         OD pairs whose route shares are recorded every day.
@@ -573,6 +648,11 @@ def simulate(network, *, rule="hedge", days=100, rate=None, schedule=None, theta
     ------
     ValueError
         Unknown rule, schedule or information type, or a parameter out of range.
+
+    Warns
+    -----
+    UserWarning
+        More than one replication of a run that draws nothing at random.
 
     Notes
     -----
@@ -635,6 +715,12 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
         if not (val >= 0 and np.isfinite(val)):
             raise ValueError(f"{name} must be non-negative, got {val!r}")
     gap_every = max(1, int(gap_every))
+    if replications > 1 and not draws_at_random(supply_noise=supply_noise,
+                                                estimate_noise=estimate_noise,
+                                                drivers=drivers):
+        warnings.warn(f"the {replications} replications will be identical: without "
+                      "capacity noise, estimate noise or individual drivers the run draws "
+                      "nothing at random", UserWarning, stacklevel=3)
 
     if equilibrium is None:
         equilibrium = solve(network, tol=ue_tol)
@@ -760,7 +846,7 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
     moves = np.zeros((days, R))
 
     rec = {name: np.full((days, R), np.nan) for name in (
-        "total_travel_time", "total_cost", "relative_gap", "route_set_gap",
+        "total_vehicle_hours", "system_cost_hours", "relative_gap", "route_set_gap",
         "distance_to_ue", "mean_regret", "max_regret", "advice_regret", "switching_share")}
     tracked = [rs.od_index(o, d) for o, d in track]
     shares_rec = [np.zeros((days, R, n_per_od[i])) for i in tracked]
@@ -819,8 +905,8 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
         hist[t % hist.shape[0]] = x
 
         tstt_nom = np.einsum("ij,ij->i", x, c_nom)
-        rec["total_travel_time"][t] = np.einsum("ij,ij->i", x, t_act)
-        rec["total_cost"][t] = np.einsum("ij,ij->i", x, c_act)
+        rec["total_vehicle_hours"][t] = np.einsum("ij,ij->i", x, t_act) / 60.0
+        rec["system_cost_hours"][t] = np.einsum("ij,ij->i", x, c_act) / 60.0
         _od_best(c_route_nom, od_ptr, od_min, od_arg)
         # no BLAS in the day loop: its spinning threads would take the cores from numba's
         rs_sptt = np.einsum("ij,j->i", od_min, q_od)
@@ -892,6 +978,7 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
     rep_no = np.tile(np.arange(R), days)
     table = pd.DataFrame({"day": day_no, "replication": rep_no,
                           **{k_: v.ravel() for k_, v in rec.items()}})
+    table["total_travel_time"] = 60.0 * table["total_vehicle_hours"]
     table = table.sort_values(["replication", "day"], kind="stable").reset_index(drop=True)
 
     route_shares = None
@@ -907,7 +994,8 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
                 "share": arr.ravel()}))
         route_shares = pd.concat(parts, ignore_index=True)
 
-    noisy = supply_noise > 0 or estimate_noise > 0 or not continuum
+    noisy = draws_at_random(supply_noise=supply_noise, estimate_noise=estimate_noise,
+                            drivers=drivers)
     osc, period = _oscillation(hist, days, window, max_lag, ue_norm, noisy,
                                rec["route_set_gap"], gap_target, moves)
     gaps = rec["relative_gap"]
@@ -933,7 +1021,8 @@ def _simulate(network, *, rule, days, rate, schedule, theta, cost_scale, informa
         arr.setflags(write=False)
     return LearningResult(days=table, route_shares=route_shares, summary=summary, flow=x,
                           mean_flow=mean_x, route_flow=f, mean_route_flow=mean_f,
-                          ue_flow=ue_flow, route_set=rs, params=params)
+                          ue_flow=ue_flow, route_set=rs, params=params,
+                          ue_vehicle_hours=float(ue_flow @ model.time(ue_flow)) / 60.0)
 
 
 def _gaps(tstt, sptt):

@@ -3,12 +3,14 @@
 from __future__ import annotations
 
 import math
+import warnings
 
 import numpy as np
 import pytest
 from scipy.optimize import brentq
 
 from congest import solve
+from congest.costs import CostModel
 from congest.learning import simulate
 from congest.network import Network
 from congest.routesets import build_route_set
@@ -225,6 +227,70 @@ def test_same_seed_same_output_different_seed_different_noise():
     assert not np.array_equal(a.flow[0], a.flow[1])
     one = simulate(net, seed=7, **{**kw, "replications": 1})
     np.testing.assert_array_equal(one.flow[0], a.flow[0])
+
+
+@pytest.mark.parametrize("source", [{}, {"supply_noise": 0.1}, {"estimate_noise": 0.1},
+                                    {"drivers": 60}])
+def test_replications_differ_only_when_something_is_random(source):
+    # Capacity noise, estimate noise and individual drivers are the only random draws;
+    # without them every replication repeats the first, and that is said, not hidden.
+    net = braess()
+    kw = dict(rule="hedge", days=20, replications=3, seed=4, **source)
+    random = bool(source)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        simulate(net, days=5, seed=4, **source)  # one replication: nothing to say
+        if random:
+            res = simulate(net, **kw)
+    if not random:
+        with pytest.warns(UserWarning, match="3 replications will be identical"):
+            res = simulate(net, **kw)
+    last = res.days.loc[res.days["day"] == 20, "total_vehicle_hours"].to_numpy()
+    ov = res.overview()
+    assert ov["draws_at_random"] is random
+    assert ov["final_vehicle_hours"] == pytest.approx(np.median(last), rel=1e-12)
+    assert ov["final_vehicle_hours_spread"] == pytest.approx(last.max() - last.min(),
+                                                             abs=1e-12)
+    if random:
+        assert ov["final_vehicle_hours_spread"] > 1e-6 * ov["final_vehicle_hours"]
+        assert not np.allclose(res.flow[0], res.flow[1], rtol=1e-9, atol=0)
+    else:
+        assert ov["final_vehicle_hours_spread"] <= 1e-12 * ov["final_vehicle_hours"]
+        np.testing.assert_allclose(res.flow, res.flow[[0, 0, 0]], rtol=1e-12)
+
+
+def test_days_table_is_in_vehicle_hours():
+    # Braess's network with a fixed charge of 3 minutes on the middle link, so that time
+    # and generalized cost differ; the table's hours are recomputed from the last day's
+    # flows through the network's own cost functions.
+    net = braess().replace(fixed_cost=[0.0, 0.0, 0.0, 0.0, 3.0])
+    res = simulate(net, rule="smith", rate=0.05, days=4, initial="free_flow")
+    model = CostModel.from_network(net)
+    x = res.flow[0]
+    last = res.days.iloc[-1]
+    assert list(res.days.columns[:4]) == ["day", "replication", "total_vehicle_hours",
+                                          "system_cost_hours"]
+    assert "total_cost" not in res.days
+    assert last["total_vehicle_hours"] == pytest.approx(x @ model.time(x) / 60.0,
+                                                        rel=1e-12)
+    assert last["system_cost_hours"] == pytest.approx(x @ model.cost(x) / 60.0, rel=1e-12)
+    assert last["system_cost_hours"] > last["total_vehicle_hours"]
+    # the old minutes column stays for readers of older tables
+    np.testing.assert_allclose(res.days["total_travel_time"],
+                               60.0 * res.days["total_vehicle_hours"], rtol=1e-12)
+    # Braess (1968); Braess, Nagurney & Wakolbinger (2005): at equilibrium the 6
+    # vehicles take 92 minutes each
+    plain = simulate(braess(), days=2)
+    assert plain.ue_vehicle_hours == pytest.approx(6 * 92 / 60, rel=1e-6)
+    assert plain.overview()["ue_vehicle_hours"] == plain.ue_vehicle_hours
+
+
+def test_label_names_rule_advice_noise_and_drivers():
+    res = simulate(braess(), rule="logit", days=2, advice_share=0.4, supply_noise=0.1,
+                   estimate_noise=0.125, drivers=30, seed=0)
+    assert res.label() == ("smoothed logit, 40% follow advice, capacity noise sd 10%, "
+                           "estimate noise sd 12.5%, 30 drivers")
+    assert simulate(braess(), days=2).label() == "Hedge, no advice, no noise"
 
 
 def test_finite_drivers_are_integer_and_conserve_demand():

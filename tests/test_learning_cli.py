@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import pandas as pd
@@ -26,8 +27,14 @@ def test_learn_writes_table_and_summary(runner, tmp_path):
                                   "--track", "1:4"])
     assert res.exit_code == 0, res.output
     table = pd.read_csv(out)
-    assert list(table.columns[:3]) == ["day", "replication", "total_travel_time"]
+    assert list(table.columns[:3]) == ["day", "replication", "total_vehicle_hours"]
     assert len(table) == 40 and table["day"].tolist() == list(range(1, 41))
+    # hours like every other table; the minutes column stays for older readers
+    pd.testing.assert_series_equal(table["total_travel_time"] / 60.0,
+                                   table["total_vehicle_hours"], check_names=False,
+                                   rtol=1e-12)
+    # Braess (1968): 6 vehicles at 92 minutes each at equilibrium
+    assert re.search(r"final vehicle-hours\s+[\d.,]+; user equilibrium 9\.2\b", res.output)
     # everybody on yesterday's fastest route: the flows flip, period 2
     # (Ben-Akiva, de Palma & Kaysi 1991)
     assert "oscillates" in res.output and "period 2" in res.output
@@ -61,3 +68,48 @@ def test_learn_bad_input(runner, tmp_path):
                                   "--out", str(tmp_path / "x.csv")])
     assert res.exit_code != 0 and "(0, 1]" in res.output
     assert not (tmp_path / "x.csv").exists()
+
+
+def test_identical_replications_are_said_on_stderr_and_in_the_summary(runner, tmp_path):
+    base = [str(NETWORKS / "braess"), "--days", "20", "--replications", "3", "--seed", "2",
+            "--out", str(tmp_path / "days.csv")]
+    res = runner.invoke(command, base)
+    assert res.exit_code == 0, res.output
+    assert "warning: the 3 replications will be identical" in res.stderr
+    assert "warning" not in res.stdout
+    assert re.search(r"spread over replications\s+none, all identical", res.stdout)
+    table = pd.read_csv(tmp_path / "days.csv")
+    last = table[table["day"] == 20]["total_vehicle_hours"]
+    assert last.max() - last.min() <= 1e-12 * last.max()
+    # capacity noise makes them differ: no warning, and the spread is the table's
+    res = runner.invoke(command, base + ["--supply-noise", "0.2"])
+    assert res.exit_code == 0, res.output
+    assert "warning" not in res.stderr
+    shown = re.search(r"spread over replications\s+([\d.,]+) vehicle-hours", res.stdout)
+    table = pd.read_csv(tmp_path / "days.csv")
+    last = table[table["day"] == 20]["total_vehicle_hours"]
+    assert float(shown.group(1).replace(",", "")) == pytest.approx(last.max() - last.min(),
+                                                                   abs=0.051)
+    assert float(shown.group(1)) > 0
+    # one replication: no spread row, no warning
+    res = runner.invoke(command, [str(NETWORKS / "braess"), "--days", "20",
+                                  "--out", str(tmp_path / "one.csv")])
+    assert res.exit_code == 0 and "spread" not in res.stdout and not res.stderr
+
+
+def test_learn_chart_names_the_setting_and_draws_the_equilibrium(runner, tmp_path):
+    chart = tmp_path / "learning.svg"
+    res = runner.invoke(command, [str(NETWORKS / "braess"), "--days", "30",
+                                  "--advice-share", "0.4", "--supply-noise", "0.1",
+                                  "--replications", "2", "--seed", "1", "--track", "1:4",
+                                  "--out", str(tmp_path / "days.csv"), "--chart", str(chart)])
+    assert res.exit_code == 0, res.output
+    svg = chart.read_text()
+    # matplotlib's SVG keeps every text as a comment beside its glyphs
+    assert "day-to-day learning (Hedge, 40% follow advice, capacity noise sd 10%)" in svg
+    assert "user equilibrium" in svg and "route 1" in svg
+    assert re.search(r"^chart\s+\S*learning\.svg$", res.stdout, re.MULTILINE)
+    res = runner.invoke(command, [str(NETWORKS / "braess"), "--out",
+                                  str(tmp_path / "x.csv"), "--chart", str(tmp_path / "x.bmp")])
+    assert res.exit_code == 1 and "unknown picture format" in res.output
+    assert not (tmp_path / "x.csv").exists() and not (tmp_path / "x.bmp").exists()
