@@ -116,9 +116,12 @@ def build_report(network, *, tol=1e-6, method="auto", advice_share=0.5, toll_pla
     learning_days : int, default 0
         Days of a Hedge learning simulation for a learning chart (0: none).
     learning_replications : int, default 5
+        Replications of the learning simulation; one when ``learning_noise`` is 0 (the
+        run then draws nothing at random, so more would be identical), with a note.
     learning_noise : float, default 0.1
-        Day-to-day capacity noise (coefficient of variation) of the simulation, so that
-        replications differ and their spread shows.
+        Day-to-day capacity noise of the simulation: the coefficient of variation (sd as
+        a share of the mean) of a capacity factor drawn per link and day, so that
+        replications differ and their spread shows. The chart's caption states it.
     seed : int, default 0
         Seed of the learning simulation.
     progress : callable, optional
@@ -165,8 +168,14 @@ def build_report(network, *, tol=1e-6, method="auto", advice_share=0.5, toll_pla
             _step(progress, "learning")
             ue = cmp.results["first_best"].ue
             o, d = np.unravel_index(int(np.argmax(net.demand)), net.demand.shape)
+            n_rep = int(learning_replications)
+            if n_rep > 1 and not learning_noise > 0:
+                notes.append(f"No capacity noise in the learning simulation: nothing in it "
+                             f"is random, so one run is shown instead of {n_rep} identical "
+                             "replications.")
+                n_rep = 1
             learning_result = simulate(net, rule="hedge", days=int(learning_days),
-                                       replications=int(learning_replications), seed=seed,
+                                       replications=n_rep, seed=seed,
                                        supply_noise=float(learning_noise),
                                        track=[(int(net.zone_ids[o]), int(net.zone_ids[d]))],
                                        equilibrium=ue if ue.state is not None else None)
@@ -262,12 +271,31 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
                             "a multiplier on the demand."))
     if learning_result is not None:
         charts.append(Chart("learning", plotting.learning_chart(
-                            learning_result, ue_total=ue.total_travel_time),
-                            "Day-to-day learning",
-                            "Drivers learning routes from daily travel times (Hedge rule) "
-                            "with day-to-day capacity noise; median and 10-90% band over "
-                            "replications; route shares of the busiest OD pair."))
+                            learning_result, ue_total=ue.total_travel_time,
+                            title=f"Day-to-day learning ({learning_result.label()})"),
+                            "Day-to-day learning", _learning_caption(learning_result)))
     return charts
+
+
+def _learning_caption(result):
+    """What the learning chart shows, with the amount of noise and of replications."""
+    p = result.params
+    noise = p.get("supply_noise", 0.0)
+    n_rep = p.get("replications", 1)
+    share = p.get("advice_share", 0.0)
+    advice = f"{100 * share:.3g}% follow advice" if share else "no advice"
+    text = f"Drivers learning routes from daily travel times (Hedge rule, {advice}) "
+    if noise:
+        text += (f"with day-to-day capacity noise sd {100 * noise:.3g}% (each link's "
+                 "capacity times a random factor of mean 1, drawn every day); ")
+    else:
+        text += "without capacity noise; "
+    if n_rep > 1:
+        text += f"median and 10-90% band over {n_rep} replications; "
+    else:
+        text += "one run; "
+    return (text + "the dashed line is the user equilibrium; route shares of the busiest "
+            "OD pair.")
 
 
 def _any_revenue(table):

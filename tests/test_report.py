@@ -127,6 +127,54 @@ def test_sweep_and_learning_tables_are_written(report, linked):
     assert {out / "sweep.csv", out / "learning-days.csv"} <= set(written)
 
 
+def _title(fig):
+    return next(t.get_text() for t in fig.texts if t.get_gid() == "congest-title")
+
+
+def test_learning_chart_states_the_noise_and_the_replications(report):
+    (chart,) = [c for c in report.charts if c.name == "learning"]
+    noise = report.learning.params["supply_noise"]
+    assert noise > 0 and report.learning.params["replications"] == 2
+    stated = f"capacity noise sd {100 * noise:g}%"
+    assert stated in chart.caption and "over 2 replications" in chart.caption
+    assert _title(chart.figure) == f"Day-to-day learning (Hedge, no advice, {stated})"
+    # the user-equilibrium reference line is drawn at the UE's vehicle-hours
+    ue = report.comparison.results["first_best"].ue
+    (line,) = [ln for ln in chart.figure.axes[0].get_lines()
+               if ln.get_label() == "user equilibrium"]
+    assert line.get_ydata()[0] == pytest.approx(ue.vehicle_hours, rel=1e-12)
+
+
+def test_learning_without_noise_runs_once_and_says_so(city):
+    # nothing random: three replications would be copies of one (and the library would
+    # warn, which the test settings turn into an error)
+    rep = build_report(city, tol=1e-4, learning_days=5, learning_replications=3,
+                       learning_noise=0.0)
+    assert rep.learning.params["replications"] == 1
+    assert rep.learning.params["supply_noise"] == 0.0
+    assert any(n.startswith("No capacity noise") and "3 identical" in n for n in rep.notes)
+    (chart,) = [c for c in rep.charts if c.name == "learning"]
+    assert "without capacity noise; one run" in chart.caption
+    assert _title(chart.figure).endswith("(Hedge, no advice, no noise)")
+
+
+def test_cli_report_sets_the_learning_noise(folder, tmp_path):
+    runner = CliRunner()
+    out = tmp_path / "rep"
+    res = runner.invoke(main, ["report", str(folder), "--out-dir", str(out), "--gap", "1e-4",
+                               "--learning-days", "5", "--replications", "2",
+                               "--supply-noise", "0.25", "--no-progress"])
+    assert res.exit_code == 0, res.output
+    md = (out / "summary.md").read_text()
+    assert "capacity noise sd 25%" in md and "over 2 replications" in md
+    res = runner.invoke(main, ["report", str(folder), "--out-dir", str(tmp_path / "rep0"),
+                               "--gap", "1e-4", "--learning-days", "5", "--supply-noise", "0",
+                               "--no-progress"])
+    assert res.exit_code == 0, res.output
+    assert "note: No capacity noise in the learning simulation" in res.stderr
+    assert "without capacity noise" in (tmp_path / "rep0" / "summary.md").read_text()
+
+
 def test_network_without_coordinates_gets_charts_but_no_maps(tmp_path):
     # Braess's paradox network (Braess 1968) without node coordinates
     from congest.network import Network

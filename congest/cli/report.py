@@ -44,7 +44,11 @@ _STEP_TEXT = {
 @click.option("--learning-days", type=click.IntRange(min=0), default=0, show_default=True,
               help="Also simulate day-to-day learning for this many days (0: no).")
 @click.option("--replications", type=click.IntRange(min=1), default=5, show_default=True,
-              help="Learning replications.")
+              help="Learning replications (one when --supply-noise is 0: nothing is "
+                   "random then).")
+@click.option("--supply-noise", type=click.FloatRange(min=0), default=0.1, show_default=True,
+              metavar="CV", help="Learning: coefficient of variation of a daily capacity "
+                                 "factor per link, as in 'congest learn' (0.1: sd 10%).")
 @click.option("--seed", type=int, default=0, show_default=True, help="Learning seed.")
 @click.option("--format", "image_format", type=click.Choice(["png", "svg"]), default="png",
               show_default=True, help="Picture format.")
@@ -56,7 +60,7 @@ _STEP_TEXT = {
 @network_options
 @friendly_errors
 def command(network, out_dir, gap, method, advice_share, plans, sweep_levels, learning_days,
-            replications, seed, image_format, embed, progress, **net_opts):
+            replications, supply_noise, seed, image_format, embed, progress, **net_opts):
     """Write a report folder for NETWORK.
 
     The folder holds scenarios.csv (the comparison of free-flow advice, reactive advice,
@@ -94,7 +98,7 @@ def command(network, out_dir, gap, method, advice_share, plans, sweep_levels, le
         return build_report(net, tol=gap, method=method, advice_share=advice_share,
                             toll_plans=toll_plans, sweep_levels=levels,
                             learning_days=learning_days, learning_replications=replications,
-                            seed=seed, progress=step_callback)
+                            learning_noise=supply_noise, seed=seed, progress=step_callback)
 
     if progress:
         status = console.status("starting")
