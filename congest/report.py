@@ -97,7 +97,7 @@ def _step(progress, name, detail=""):
         progress(name, detail)
 
 
-def build_report(network, *, tol=1e-6, method="auto", advice_share=0.5, toll_plans=(),
+def build_report(network, *, tol=None, method="auto", advice_share=0.5, toll_plans=(),
                  sweep_levels=None, learning_days=0, learning_replications=5,
                  learning_noise=0.1, seed=0, progress=None) -> Report:
     """Solve the scenarios and draw the report's charts.
@@ -105,8 +105,9 @@ def build_report(network, *, tol=1e-6, method="auto", advice_share=0.5, toll_pla
     Parameters
     ----------
     network : Network
-    tol : float, default 1e-6
-        Relative-gap target of every equilibrium.
+    tol : float, optional
+        Relative-gap target of every equilibrium. Default:
+        :func:`congest.equilibrium.default_tol`, 1e-10, or 1e-5 with a link-based method.
     method : str, default "auto"
     advice_share : float, default 0.5
         Share of drivers on free-flow advice in the mixed scenario.
@@ -134,10 +135,12 @@ def build_report(network, *, tol=1e-6, method="auto", advice_share=0.5, toll_pla
     """
     import warnings
 
+    from .equilibrium import default_tol
     from .exceptions import ConvergenceWarning, SolverError
     from .io.geojson import coordinate_note
     from .scenarios import compare
 
+    tol = default_tol(method) if tol is None else tol
     net = network
     notes = []
     with warnings.catch_warnings():
@@ -226,9 +229,11 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
         charts.append(Chart("tolls", plotting.toll_map(net, fb.tolls_money, flow=fb.tolled_ue,
                                                        scenario="marginal-cost tolls"),
                             "Marginal-cost tolls",
-                            f"Tolls x t'(x) at the system optimum, in {net.currency} per "
-                            "vehicle; under them, drivers choosing selfishly reproduce the "
-                            "system optimum."))
+                            f"Each link's toll is the delay one more vehicle imposes on "
+                            f"everyone else on it at the system optimum (volume times the "
+                            f"slope of its travel-time curve), in {net.currency} per vehicle; "
+                            "with these tolls, drivers choosing their own fastest-and-"
+                            "cheapest routes reproduce the system optimum."))
         for key, links in cmp.links.items():
             if not key.startswith("plan_"):
                 continue

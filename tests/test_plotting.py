@@ -18,13 +18,14 @@ matplotlib.use("Agg")
 import numpy as np
 import pandas as pd
 import pytest
-from matplotlib.colors import Normalize
+from matplotlib.colors import LogNorm, Normalize
 
 import congest
 from congest.exceptions import NetworkError
 from congest.network import Network
 from congest.plotting import (
     MAP_LAYERS,
+    TOLL_LOG_SPAN,
     change_colormap,
     convergence_chart,
     difference_map,
@@ -37,7 +38,9 @@ from congest.plotting import (
     sweep_chart,
     toll_colormap,
     toll_map,
+    toll_scale,
 )
+from congest.pricing import tolled_mask
 
 
 def grid(n_rows=4, n_cols=5, *, spacing=1.0, crs="", one_way=True, seed=0, **extra):
@@ -329,19 +332,101 @@ def test_toll_map_draws_tolled_links_and_amounts(net):
     assert "1 link(s) with tolls below" in text(fig, "congest-footnote")
 
 
-def test_toll_map_scale_is_not_squeezed_by_one_dear_link(net):
+def colour_bar(fig, label_start="Toll"):
+    return next(ax for ax in fig.axes if ax.get_ylabel().startswith(label_start))
+
+
+def test_toll_map_keeps_a_dear_link_apart_on_a_log_scale(net):
     toll = np.zeros(net.n_links)
     toll[:20] = np.linspace(0.1, 0.5, 20)
-    toll[20] = 4.0  # one bridge toll eight times the rest
+    toll[20] = 4.0  # one bridge toll eight times the dearest of the rest, 40 the cheapest
     fig = toll_map(net, toll, currency="crowns")
-    expected = toll_colormap()(Normalize(0.0, 0.5)(np.minimum(toll[:21], 0.5)))
+    # every toll in its own colour on a log scale from the smallest toll to the largest
+    expected = toll_colormap()(LogNorm(0.1, 4.0)(toll[:21]))
     np.testing.assert_allclose(layer(fig, "links").get_colors(), expected, atol=1e-12)
-    assert "1 link(s) with tolls above 0.50 crowns drawn in the top colour" in text(
-        fig, "congest-footnote")
-    # without an outlier the scale runs to the largest toll
-    toll[20] = 0.5
+    colors = layer(fig, "links").get_colors()
+    # the bridge is as far in colour from the next toll as 0.5 is from 0.1 (both x8 / x5):
+    # no capping colour shared by the dear link and the usual ones
+    bridge_gap = np.abs(colors[20, :3] - colors[19, :3]).sum()
+    assert bridge_gap > 0.5 * np.abs(colors[19, :3] - colors[0, :3]).sum()
+    cbar = colour_bar(fig)
+    assert cbar.get_yscale() == "log"
+    np.testing.assert_allclose(cbar.get_ylim(), (0.1, 4.0))
+    labels = [t.get_text() for t in cbar.get_yticklabels()]
+    assert labels[0] == "0.1" and labels[-1] == "4"  # the true largest toll is a tick
+    assert "1" in labels
+    assert "logarithmic" in cbar.get_ylabel()
+    note = " ".join(text(fig, "congest-footnote").split())
+    assert "colour scale is logarithmic" in note and "top colour" not in note
+
+
+def test_toll_map_linear_when_the_tolls_are_close(net):
+    toll = np.zeros(net.n_links)
+    toll[:20] = np.linspace(0.5, 4.0, 20)  # a factor 8: a linear scale from zero
     fig = toll_map(net, toll, currency="crowns")
-    assert "top colour" not in text(fig, "congest-footnote")
+    expected = toll_colormap()(Normalize(0.0, 4.0)(toll[:20]))
+    np.testing.assert_allclose(layer(fig, "links").get_colors(), expected, atol=1e-12)
+    cbar = colour_bar(fig)
+    assert cbar.get_yscale() == "linear"
+    assert cbar.get_ylabel() == "Toll, crowns per vehicle"
+    assert "logarithmic" not in text(fig, "congest-footnote")
+
+
+def test_toll_map_log_scale_floor_and_what_falls_below_it(net):
+    # marginal-cost-like tolls spanning four decades, as a bridge over a ring of
+    # light tolls gives: the scale starts at 0.005 (half a hundredth, above 1/1000 of
+    # the largest toll) and the tolls under it are drawn as untolled and counted
+    rng = np.random.default_rng(4)
+    toll = np.zeros(net.n_links)
+    toll[:30] = 10.0 ** rng.uniform(-3.6, -0.7, 30)
+    toll[30] = 2.23
+    toll[31] = 1e-9  # rounding noise, not a toll
+    tolled = tolled_mask(toll)
+    norm, floor, ticks = toll_scale(toll)
+    assert isinstance(norm, LogNorm)
+    assert floor == pytest.approx(0.005) and norm.vmax == pytest.approx(2.23)
+    drawn = tolled & (toll >= floor)
+    assert 0 < drawn.sum() < tolled.sum()
+    fig = toll_map(net, toll, currency="crowns")
+    np.testing.assert_allclose(layer(fig, "links").get_colors(),
+                               toll_colormap()(LogNorm(floor, 2.23)(toll[drawn])), atol=1e-12)
+    n_context = int(np.sum(~drawn & ~net.connectors))
+    assert len(layer(fig, "context").get_segments()) == n_context
+    small, k = int(np.sum(tolled & ~drawn)), int(tolled.sum())
+    note = " ".join(text(fig, "congest-footnote").split())  # the footnote wraps
+    assert (f"{small} of the {k} tolled links charge under 0.005 crowns and are drawn "
+            "as untolled") in note
+    assert "1 link(s) with tolls below 0.000223 crowns do not count as tolled" in note
+    key = [t.get_text() for ax in fig.axes for t in ax.texts]
+    assert "untolled, or under\n0.005 crowns" in key
+    labels = [t.get_text() for t in colour_bar(fig).get_yticklabels()]
+    assert labels == ["0.005", "0.01", "0.1", "1", "2.23"]
+    # the subtitle still counts every tolled link (one definition of a tolled link)
+    assert text(fig, "congest-subtitle").startswith(f"{int(tolled.sum())} tolled links")
+
+
+@pytest.mark.parametrize("seed", range(20))
+def test_toll_scale_is_log_exactly_when_the_tolls_span_a_wide_range(seed):
+    rng = np.random.default_rng(seed)
+    toll = np.where(rng.random(40) < 0.6, 10.0 ** rng.uniform(-3, 1, 40), 0.0)
+    toll[0] = 10.0 ** rng.uniform(-1, 2)
+    norm, floor, ticks = toll_scale(toll)
+    shown = toll[tolled_mask(toll)]
+    top = shown.max()
+    # the floor: the smallest toll, at least 1/1000 of the largest and 0.005, rounded
+    # down to 1, 2 or 5 times a power of ten
+    lowest = max(shown.min(), top / 1000, 0.005)
+    power = 10.0 ** np.floor(np.log10(lowest))
+    expected_floor = max(m for m in (1, 2, 5) if m * power <= lowest * (1 + 1e-9)) * power
+    if top > TOLL_LOG_SPAN * expected_floor:
+        assert isinstance(norm, LogNorm)
+        assert floor == pytest.approx(expected_floor)
+        assert norm.vmin == floor and norm.vmax == top
+        assert ticks[0] == floor and ticks[-1] == top
+        assert np.all(np.diff(np.log10(ticks)) >= np.log10(1.5) - 1e-12)
+    else:
+        assert not isinstance(norm, LogNorm)
+        assert floor == 0 and norm.vmin == 0 and top <= norm.vmax < 1.3 * top
 
 
 def test_select_link_map_highlights_the_selection(net):

@@ -6,9 +6,9 @@ Every function takes data (a :class:`~congest.network.Network`, an
 window opens; :func:`save_figure` writes one as PNG, SVG or PDF. matplotlib is imported
 inside the functions, so ``import congest`` stays free of it.
 
-Maps: :func:`flow_map`, :func:`difference_map`, :func:`toll_map`,
-:func:`select_link_map`. Charts: :func:`convergence_chart`, :func:`sweep_chart`,
-:func:`learning_chart`, :func:`scenario_chart`.
+Maps: :func:`flow_map`, :func:`difference_map`, :func:`toll_map` (its colour scale
+from :func:`toll_scale`), :func:`select_link_map`. Charts: :func:`convergence_chart`,
+:func:`sweep_chart`, :func:`learning_chart`, :func:`scenario_chart`.
 """
 
 from ._charts import (
@@ -19,6 +19,7 @@ from ._charts import (
 )
 from ._maps import (
     MAP_LAYERS,
+    TOLL_LOG_SPAN,
     change_colormap,
     difference_map,
     flow_map,
@@ -28,6 +29,7 @@ from ._maps import (
     select_link_map,
     toll_colormap,
     toll_map,
+    toll_scale,
 )
 from ._output import FORMATS, save_figure
 
@@ -45,7 +47,9 @@ __all__ = [
     "save_figure",
     "load_colormap",
     "toll_colormap",
+    "toll_scale",
     "change_colormap",
     "MAP_LAYERS",
+    "TOLL_LOG_SPAN",
     "FORMATS",
 ]

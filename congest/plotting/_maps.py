@@ -35,8 +35,10 @@ __all__ = [
     "select_link_flow",
     "load_colormap",
     "toll_colormap",
+    "toll_scale",
     "change_colormap",
     "MAP_LAYERS",
+    "TOLL_LOG_SPAN",
 ]
 
 #: ``gid`` of the collections a map draws, for finding them again in a figure.
@@ -626,6 +628,88 @@ def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), key_figure=Non
     return frame.fig
 
 
+#: Tolls whose largest is more than this many times the smallest drawn get a
+#: logarithmic colour scale; closer tolls share a linear one from zero.
+TOLL_LOG_SPAN = 15.0
+#: Decades of the logarithmic toll scale at most: its floor is no lower than the
+#: largest toll divided by ten to this power.
+TOLL_LOG_DECADES = 3
+#: Money per vehicle below which a toll rounds to 0.00: the log scale never starts lower.
+_MONEY_STEP = 0.005
+
+
+def _amount(value):
+    """Money with up to three significant digits: 0.005, 0.17, 2.23, 12.5, 1,250."""
+    if not (value > 0 and math.isfinite(value)):
+        return _fmt(value)
+    if value >= 100:
+        return f"{value:,.0f}"
+    digits = max(0, 2 - math.floor(math.log10(value)))
+    return f"{value:,.{digits}f}".rstrip("0").rstrip(".")
+
+
+def toll_scale(tolls):
+    """Colour scale of :func:`toll_map`: linear from zero, or logarithmic from a floor.
+
+    Parameters
+    ----------
+    tolls : array_like
+        Money per vehicle; only tolled links (:func:`congest.pricing.tolled_mask`) count.
+
+    Returns
+    -------
+    norm : matplotlib.colors.Normalize or matplotlib.colors.LogNorm
+    floor : float
+        Smallest toll drawn in colour (0 for a linear scale); tolls below it are drawn
+        as untolled.
+    ticks : ndarray or None
+        Colour-bar ticks of a logarithmic scale (the floor, the largest toll and round
+        values between); None for a linear scale (matplotlib's own ticks).
+
+    Notes
+    -----
+    With tolls from ``lo`` to ``top`` the floor is ``max(lo, top / 10**3, 0.005)``
+    (rounded down to 1, 2 or 5 times a power of ten), so that tolls that round to
+    0.00 and the rounding noise of a marginal-cost toll set no colour. When ``top``
+    is over :data:`TOLL_LOG_SPAN` times the floor the scale is logarithmic from the
+    floor to ``top``, so a bridge charging ten times the ring road's toll gets a
+    colour a ring-road toll never has; otherwise it is linear from zero to ``top``
+    rounded up.
+    """
+    from matplotlib.colors import LogNorm, Normalize
+
+    from ..pricing import tolled_mask
+
+    amount = np.asarray(tolls, dtype=np.float64)
+    tolled = tolled_mask(amount) if amount.size else np.zeros(0, dtype=bool)
+    if not tolled.any():
+        return Normalize(vmin=0.0, vmax=1.0), 0.0, np.linspace(0.0, 1.0, 5)
+    top, low = float(amount[tolled].max()), float(amount[tolled].min())
+    floor = max(low, top * 10.0 ** -TOLL_LOG_DECADES, _MONEY_STEP)
+    floor = _nice_down_125(floor)
+    if top <= TOLL_LOG_SPAN * floor:
+        scale_top = _nice(top, fine=True)
+        return Normalize(vmin=0.0, vmax=scale_top), 0.0, None
+    return LogNorm(vmin=floor, vmax=top), floor, _log_ticks(floor, top)
+
+
+def _nice_down_125(value):
+    """``value`` rounded down to 1, 2 or 5 times a power of ten."""
+    exp = math.floor(math.log10(value))
+    base = 10.0 ** exp
+    return max(s for s in (1.0, 2.0, 5.0) if s * base <= value * (1 + 1e-9)) * base
+
+
+def _log_ticks(lo, hi):
+    """Ticks of a log scale: the ends, the powers of ten between and, on scales under
+    two decades, 2 and 5 times them; none closer than a factor 1.5 to an end."""
+    steps = (1.0, 2.0, 5.0) if hi / lo < 100.0 else (1.0,)
+    inner = [s * 10.0 ** e for e in range(math.floor(math.log10(lo)),
+                                          math.ceil(math.log10(hi)) + 1) for s in steps]
+    inner = [t for t in inner if lo * 1.5 <= t <= hi / 1.5]
+    return np.array([lo, *inner, hi])
+
+
 def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
              scenario="tolls", figsize=(10.0, 8.0)):
     """Map of tolled links and their amounts.
@@ -641,75 +725,88 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
     currency : str, optional
         Default ``network.currency``.
     label_limit : int, default 24
-        Amounts are written beside the tolled links when there are at most this many.
+        Amounts are written beside the tolled links when at most this many are drawn.
     scenario : str, default "tolls"
     figsize : (float, float), default (10, 8)
 
     Returns
     -------
     matplotlib.figure.Figure
-        Untolled roads are the grey ``MAP_LAYERS["context"]`` collection and untolled
-        zone connectors the dashed ``MAP_LAYERS["connectors"]`` one; tolled links
-        are the ``MAP_LAYERS["links"]`` collection, coloured by ``toll_colormap()`` over
-        ``[0, max toll]``.
+        Tolled links (:func:`congest.pricing.tolled_mask`) at or above the scale's floor
+        are the ``MAP_LAYERS["links"]`` collection, coloured by ``toll_colormap()``
+        under the norm of :func:`toll_scale`: linear from 0 to the largest toll rounded
+        up, or logarithmic from a floor to the largest toll when the tolls span more
+        than :data:`TOLL_LOG_SPAN` times. The other roads are the grey
+        ``MAP_LAYERS["context"]`` collection and the other zone connectors the dashed
+        ``MAP_LAYERS["connectors"]`` one; the key and the footnote say how many
+        tolls are too small to draw.
     """
-    from matplotlib.colors import Normalize
-
     net = network
     amount = _as_flow(net, net.toll if toll is None else toll, "toll")
     currency = net.currency if currency is None else currency
     volume = None if flow is None else _as_flow(net, flow, "flow")
     from ..pricing import TOLL_RELATIVE_FLOOR, tolled_mask
 
-    # tolls below 1e-4 of the largest (rounding noise where an SO flow is near zero)
-    # are drawn as untolled and counted in the footnote, as in every count of tolled links
-    top_toll = float(np.max(np.abs(amount))) if amount.size else 0.0
+    # tolls below 1e-4 of the largest (rounding noise where an SO flow is near zero) are
+    # not tolls, as in every count of tolled links; a log scale also leaves out those
+    # below its floor. Both are drawn as untolled and counted in the key and footnote.
     tolled = tolled_mask(amount)
-    tiny = int(np.sum((amount > 0) & ~tolled))
+    norm, floor, ticks = toll_scale(amount)
+    drawn = tolled & (amount >= floor)
+    top = float(amount[tolled].max()) if tolled.any() else 0.0
+    noise = float(np.max(amount, initial=0.0)) * TOLL_RELATIVE_FLOOR
+    below = max(floor, noise)
+    hidden = int(np.sum((amount > 0) & ~drawn))
+    small = int(np.sum(tolled & ~drawn))  # tolled, but under the log scale's floor
     frame = _Frame(net, figsize=figsize)
     hair = np.full(net.n_links, _HAIRLINE * 2)
     context = np.tile(np.array([[0.79, 0.81, 0.83, 1.0]]), (net.n_links, 1))
-    frame.add_links(hair, context, layer="context", zorder=1, mask=~tolled & frame.road)
-    frame.add_connectors(mask=~tolled)
-    top = float(amount.max()) if tolled.any() else 1.0
-    # a few dear links (a bridge, say) would squeeze every other toll into one colour:
-    # the scale then ends at the 95th percentile and the dearer links take its top colour
-    usual = float(np.quantile(amount[tolled], 0.95)) if tolled.any() else top
-    capped = tolled.sum() >= 10 and top > 2.0 * usual
-    scale_top = _nice(usual if capped else top, fine=True)
-    n_above = int(np.sum(amount > scale_top)) if capped else 0
-    norm = Normalize(vmin=0.0, vmax=scale_top)
+    frame.add_links(hair, context, layer="context", zorder=1, mask=~drawn & frame.road)
+    frame.add_connectors(mask=~drawn)
     cmap = toll_colormap()
     if volume is not None:
-        vref = float(np.max(volume[tolled])) if tolled.any() else 0.0
+        vref = float(np.max(volume[drawn])) if drawn.any() else 0.0
         widths = frame.widths(volume, vref)
         widths = np.maximum(widths, 1.0)
     else:
         vref = 0.0
         widths = np.full(net.n_links, max(frame.max_width * 0.7, 1.0))
-    frame.add_links(widths, cmap(norm(amount)), mask=tolled, zorder=3)
-    frame.add_colorbar(cmap, norm, f"Toll, {currency} per vehicle",
-                       extend="max" if n_above else "neither")
+    frame.add_links(widths, cmap(norm(np.maximum(amount, floor))), mask=drawn, zorder=3)
+    logarithmic = floor > 0
+    cbar = frame.add_colorbar(cmap, norm, f"Toll, {currency} per vehicle"
+                              + ("\n(logarithmic scale)" if logarithmic else ""),
+                              ticks=ticks)
+    if logarithmic:
+        from matplotlib.ticker import NullFormatter
+
+        cbar.set_ticks(ticks, labels=[_amount(t) for t in ticks])
+        cbar.ax.yaxis.set_minor_formatter(NullFormatter())
     if volume is not None and vref > 0:
-        frame.add_width_key(_samples(vref), f"Volume on tolled links,\nvehicles in the "
-                            f"{_period(net)}", reference=vref)
+        y_next = frame.add_width_key(_samples(vref), f"Volume on tolled links,\nvehicles "
+                                     f"in the {_period(net)}", reference=vref)
     else:
-        frame.add_symbols(0.90)
+        y_next = frame.add_symbols(0.90)
+    untolled = ("untolled" if not hidden else
+                f"untolled, or under\n{_amount(below)} {currency}")
+    # a little wider than on the map, where the many grey lines make each other visible
+    frame.kax.plot([0.02, 0.30], [y_next, y_next], color=context[0], lw=_HAIRLINE * 4,
+                   solid_capstyle="butt", gid="congest-key-untolled")
+    frame.kax.text(0.36, y_next, untolled, fontsize=8, color=_INK, va="center")
     frame.add_scale_bar()
-    k = int(tolled.sum())
-    if 0 < k <= label_limit:
+    if 0 < int(drawn.sum()) <= label_limit:
         seg = frame.segments()
         x0, y0, x1, y1, nx, ny, _ = frame._geom
         push = 2.2 * frame.max_width * frame.units_per_point
-        for i in np.flatnonzero(tolled):
+        for i in np.flatnonzero(drawn):
             mx = seg[i, :, 0].mean() + nx[i] * push
             my = seg[i, :, 1].mean() + ny[i] * push / frame.sy
-            frame.ax.text(mx, my, _fmt(amount[i]), fontsize=7, color=_INK, ha="center",
+            frame.ax.text(mx, my, _amount(amount[i]), fontsize=7, color=_INK, ha="center",
                           va="center", zorder=7,
                           bbox={"boxstyle": "round,pad=0.12", "fc": "white", "ec": "none",
                                 "alpha": 0.85})
+    k = int(tolled.sum())
     if k:
-        lo, hi = _money(amount[tolled].min()), _money(amount[tolled].max())
+        lo, hi = _money(amount[tolled].min()), _money(top)
         sub = (f"{k:,} tolled link{'s' if k != 1 else ''}  ·  "
                f"{lo if lo == hi else f'{lo} to {hi}'} {currency} per vehicle")
         if volume is not None:
@@ -718,12 +815,15 @@ def toll_map(network, toll=None, *, flow=None, currency=None, label_limit=24,
         sub = "no tolled links"
     frame.titles(f"{net.name}: {scenario}", sub)
     notes = []
-    if n_above:
-        notes.append(f"{n_above:,} link(s) with tolls above {_money(scale_top)} {currency} "
-                     "drawn in the top colour.")
-    if tiny:
-        notes.append(f"{tiny:,} link(s) with tolls below "
-                     f"{TOLL_RELATIVE_FLOOR * top_toll:.2g} {currency} drawn as untolled.")
+    if logarithmic:
+        notes.append("The colour scale is logarithmic: equal steps of colour are equal "
+                     "ratios of toll.")
+    if small:
+        notes.append(f"{small:,} of the {k:,} tolled links charge under {_amount(floor)} "
+                     f"{currency} and are drawn as untolled.")
+    if hidden > small:
+        notes.append(f"{hidden - small:,} link(s) with tolls below {_amount(noise)} "
+                     f"{currency} do not count as tolled and are drawn as untolled.")
     frame.footnote(" ".join(notes))
     return frame.fig
 
