@@ -274,7 +274,8 @@ def learning_chart(days, *, ue_total=None, route_shares=None, title="Day-to-day 
     days : LearningResult or pandas.DataFrame
         A :class:`congest.learning.LearningResult` (its ``days`` and ``route_shares``
         are used), or one row per day (and replication): ``day``,
-        ``total_travel_time`` (vehicle-minutes) and ``relative_gap``; with a
+        ``total_vehicle_hours`` (or ``total_travel_time`` in vehicle-minutes) and
+        ``relative_gap``; with a
         ``replication`` column the spread across replications is drawn as the median
         and a 10-90% band.
     ue_total : float, optional
@@ -296,13 +297,17 @@ def learning_chart(days, *, ue_total=None, route_shares=None, title="Day-to-day 
         if route_shares is None:
             route_shares = days.route_shares
         days = days.days
-    for col in ("day", "total_travel_time", "relative_gap"):
+    for col in ("day", "relative_gap"):
         if col not in days:
             raise ValueError(f"learning table needs a {col!r} column")
+    if "total_vehicle_hours" not in days and "total_travel_time" not in days:
+        raise ValueError("learning table needs a 'total_vehicle_hours' or "
+                         "'total_travel_time' column")
     n_rows = 3 if route_shares is not None and len(route_shares) else 2
     fig, axes = _new_figure(figsize, n_rows=n_rows, sharex=True)
     frame = days.copy()
-    frame["vehicle_hours"] = frame["total_travel_time"] / 60.0
+    frame["vehicle_hours"] = (frame["total_vehicle_hours"] if "total_vehicle_hours" in frame
+                              else frame["total_travel_time"] / 60.0)
     n_rep = _spread(axes[0], frame, "day", "vehicle_hours", PALETTE[0],
                     "simulated" + (" (median, 10-90% band)" if "replication" in frame
                                    and frame["replication"].nunique() > 1 else ""))

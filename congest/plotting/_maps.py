@@ -410,6 +410,19 @@ def _key_figures(eq, road):
             f"  relative gap {eq.relative_gap:.1e}")
 
 
+def _vehicle_minutes(net, volume, travel_time, what):
+    """Sum of volume x travel time over every link, vehicle-minutes."""
+    return float(volume @ _as_flow(net, travel_time, what))
+
+
+def _table_key_figures(net, volume, travel_time, vc, road):
+    """Subtitle for link results with travel times: vehicle-hours, mean trip, overloads."""
+    minutes = _vehicle_minutes(net, volume, travel_time, "travel_time")
+    trips = net.total_demand
+    mean = f"  ·  mean trip {minutes / trips:.1f} min" if trips > 0 else ""
+    return f"{minutes / 60.0:,.0f} vehicle-hours{mean}  ·  {_over_capacity(vc, road)}"
+
+
 def _over_capacity(vc, road):
     """"12 of 394 road links over capacity" (plain "links" when there are no connectors)."""
     what = "links" if road.all() else "road links"
@@ -427,8 +440,8 @@ def _period(net):
 
 
 # ------------------------------------------------------------------- maps
-def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
-             volume_max=None, show_zones=True, figsize=(10.0, 8.0)):
+def flow_map(network, flow, *, scenario=None, key_figure=None, travel_time=None,
+             vc_max=None, volume_max=None, show_zones=True, figsize=(10.0, 8.0)):
     """Map of link volumes: width by volume, colour by volume/capacity.
 
     Parameters
@@ -443,7 +456,13 @@ def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
         Name shown in the title (default: the equilibrium's objective, or "volumes").
     key_figure : str, optional
         Subtitle (default: vehicle-hours, mean trip time, links over capacity and the
-        relative gap, when ``flow`` is an Equilibrium).
+        relative gap, when ``flow`` is an Equilibrium; vehicle-hours, mean trip time and
+        links over capacity when ``travel_time`` is given; else links over capacity).
+    travel_time : array_like of shape (n_links,), optional
+        Link travel times, minutes, at the volumes ``flow`` (e.g. the ``travel_time``
+        column of a link results table), for the key figures of volumes that are not an
+        Equilibrium: vehicle-hours are ``sum(volume * travel_time) / 60`` and the mean
+        trip time that sum over the network's trips.
     vc_max : float, optional
         Top of the colour scale. Default: the largest volume/capacity of a road link
         rounded up to a quarter, at least 1 and at most 2; links above it take the top
@@ -523,8 +542,12 @@ def flow_map(network, flow, *, scenario=None, key_figure=None, vc_max=None,
     if scenario is None:
         scenario = _OBJECTIVE_NAMES.get(getattr(eq, "objective", None), "volumes")
     if key_figure is None:
-        key_figure = (_key_figures(eq, road) if eq is not None
-                      else _over_capacity(vc, road))
+        if eq is not None:
+            key_figure = _key_figures(eq, road)
+        elif travel_time is not None:
+            key_figure = _table_key_figures(net, volume, travel_time, vc, road)
+        else:
+            key_figure = _over_capacity(vc, road)
     frame.titles(f"{net.name}: {scenario}", key_figure)
     frame.footnote("Two-way roads: each direction drawn on its right-hand side.")
     return frame.fig
@@ -561,8 +584,9 @@ def flow_scales(network, *flows):
     return scales
 
 
-def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), key_figure=None,
-                   show_zones=False, figsize=(10.0, 8.0)):
+def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), title=None,
+                   key_figure=None, travel_time=None, show_zones=False,
+                   figsize=(10.0, 8.0)):
     """Map of the change in link volume from scenario A to scenario B.
 
     Parameters
@@ -572,9 +596,14 @@ def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), key_figure=Non
         Volumes in the two scenarios, same network and link order.
     labels : (str, str), default ("A", "B")
         Scenario names.
+    title : str, optional
+        Title after the network's name (default: "B against A").
     key_figure : str, optional
-        Subtitle (default: the change in vehicle-hours when both are Equilibria, then
-        the number of links gaining and losing volume).
+        Subtitle (default: the change in vehicle-hours when both are Equilibria or
+        ``travel_time`` is given, then the number of links gaining and losing volume).
+    travel_time : (array_like, array_like), optional
+        Link travel times in minutes of scenarios A and B, each of shape (n_links,),
+        for the change in vehicle-hours of volumes that are not Equilibria.
     show_zones : bool, default False
     figsize : (float, float), default (10, 8)
 
@@ -617,13 +646,23 @@ def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), key_figure=Non
     if key_figure is None:
         parts = []
         if all(hasattr(f, "vehicle_hours") for f in (flow_a, flow_b)):
-            dvh = flow_b.vehicle_hours - flow_a.vehicle_hours
-            pct = 100.0 * dvh / flow_a.vehicle_hours if flow_a.vehicle_hours else 0.0
+            vh_a, vh_b = flow_a.vehicle_hours, flow_b.vehicle_hours
+        elif travel_time is not None:
+            time_a, time_b = travel_time
+            vh_a = _vehicle_minutes(net, a, time_a, "travel_time of A") / 60.0
+            vh_b = _vehicle_minutes(net, b, time_b, "travel_time of B") / 60.0
+        else:
+            vh_a = vh_b = None
+        if vh_a is not None:
+            dvh = vh_b - vh_a
+            pct = 100.0 * dvh / vh_a if vh_a else 0.0
             change_txt = f"{dvh:+,.0f} ({pct:+.1f}%)".replace("-", "\u2212")
             parts.append(f"vehicle-hours {change_txt}")
         parts.append(f"{n_up} {_road_links(frame)} gain volume, {n_down} lose")
         key_figure = "  ·  ".join(parts)
-    frame.titles(f"{net.name}: {labels[1]} against {labels[0]}", key_figure)
+    if title is None:
+        title = f"{labels[1]} against {labels[0]}"
+    frame.titles(f"{net.name}: {title}", key_figure)
     frame.footnote()
     return frame.fig
 
