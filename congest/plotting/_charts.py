@@ -192,7 +192,7 @@ def sweep_chart(table, *, currency="money", title="Demand sweep", figsize=(9.0, 
     x, poa = first["demand_scale"].to_numpy(float), first["price_of_anarchy"].to_numpy(float)
     ax_p.plot(x, poa, color=PALETTE[0], lw=1.8, marker="o", ms=3.5)
     ax_p.axhline(1.0, color=_MUTED, lw=0.9, ls=(0, (4, 3)))
-    ax_p.text(1.0, 1.0, "1 = selfish routing costs nothing ", fontsize=7.5, color=_MUTED,
+    ax_p.text(1.0, 1.0, "1 = selfish routing costs nothing extra ", fontsize=7.5, color=_MUTED,
               va="bottom", ha="right", transform=ax_p.get_yaxis_transform())
     ok = np.isfinite(poa)
     sub = ""
