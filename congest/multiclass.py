@@ -285,14 +285,17 @@ def solve_multiclass(net, classes, *, toll_money=None, method="gp", tol=None,
         Shares summing to 1.
     toll_money : array_like of shape (n_links,), optional
         Money per vehicle added to the network's tolls.
-    method : {"gp", "bfw", "cfw", "fw", "msa"}, default "gp"
-        Route-based gradient projection, or a direction finder of the Frank-Wolfe loop
-        (:mod:`congest._frank_wolfe`; these reach about 1e-6 in reasonable time).
+    method : {"gp", "auto", "bfw", "cfw", "fw", "msa"}, default "gp"
+        Route-based gradient projection (also for ``"auto"``), or a direction finder of
+        the Frank-Wolfe loop (:mod:`congest._frank_wolfe`; these reach about 1e-6 in
+        reasonable time).
     tol : float, optional
         Target relative gap. Default: :func:`congest.equilibrium.default_tol`, 1e-10,
         or 1e-5 with a link-based method.
     max_iter, time_limit, callback
-        As for :func:`congest.solve`.
+        As for :func:`congest.solve`. The callback's flow is the total link flow with
+        ``"gp"`` and the stacked class flows, shape ``(n_classes * n_links,)``, with the
+        Frank-Wolfe methods.
     warm_start : MultiClassEquilibrium, optional
         An earlier ``"gp"`` result on the same network with the same classes (e.g. the
         untolled one before a toll): its routes are the starting point.
@@ -330,6 +333,8 @@ def solve_multiclass(net, classes, *, toll_money=None, method="gp", tol=None,
     >>> eq.class_table()["mean_toll_money"].round(6).tolist()
     [5.0, 0.0]
     """
+    if method == "auto":
+        method = "gp"
     tol = default_tol(method) if tol is None else tol
     classes = _check_classes(classes)
     fname = MULTICLASS_METHODS.get(method)
@@ -350,6 +355,9 @@ def solve_multiclass(net, classes, *, toll_money=None, method="gp", tol=None,
             f"class {classes[j].name!r} ({least[j, i]:.6g} min); a rebate may not exceed "
             "the link's free-flow time and fixed cost")
     if warm_start is not None:
+        if getattr(warm_start, "classes", None) is None:
+            raise SolverError("a multi-class warm start needs an earlier multi-class result "
+                              "(solve_multiclass); a single-class result has no class routes")
         if method != "gp" or getattr(warm_start, "state", None) is None:
             raise SolverError("a multi-class warm start needs method 'gp' and an earlier "
                               "'gp' result")
@@ -372,7 +380,8 @@ def solve_multiclass(net, classes, *, toll_money=None, method="gp", tol=None,
     _, sptt, od_cost = problem.all_or_nothing(grad)
     tstt = float(xs.ravel() @ grad)
     gap = relative_gap(tstt, sptt)
-    converged = bool(gap <= tol)
+    # the solver's own test counts too: its gap and this one differ by rounding only
+    converged = bool(gap <= tol or raw.get("converged", False))
     message = raw.get("message") or (
         f"relative gap {gap:.3g} {'<=' if converged else '>'} target {tol:.3g}")
     if not converged:

@@ -638,7 +638,8 @@ def second_best(net, links, *, bounds=None, tol=None, method="auto", search="aut
         on the two grid cells around it). A toll high enough to empty the tolled links
         makes the system cost flat over most of the default range; a search started
         inside that plateau (Brent's first points lie at 38 % and 62 % of the range)
-        never sees the small tolls that help. Costs ``9 * n_groups`` solves at most.
+        never sees the small tolls that help. Costs ``8 * n_groups`` solves (plus one
+        with several groups), counted in ``max_evals``.
 
     Returns
     -------
@@ -689,7 +690,7 @@ def second_best(net, links, *, bounds=None, tol=None, method="auto", search="aut
     cache = {}
     grads = {}
     trace_tolls, trace_cost = [], []
-    state = {"warm": fb.ue, "stop": False, "best": (np.inf, None, None)}
+    state = {"warm": fb.ue, "stop": False, "capped": False, "best": (np.inf, None, None)}
     kw = {"tol": tol, "method": method, "max_iter": solver_max_iter}
 
     def evaluate(tolls):
@@ -697,7 +698,8 @@ def second_best(net, links, *, bounds=None, tol=None, method="auto", search="aut
         key = tuple(np.round(tolls, 12))
         if key in cache:
             return cache[key]
-        if len(cache) >= max_evals or state["stop"]:
+        if len(trace_cost) >= max_evals or state["stop"]:
+            state["capped"] = not state["stop"]
             return state["best"][0]
         eq = _warm_solve(net.with_tolls(expand @ tolls), objective="ue",
                          warm_start=state["warm"] if warm else None, **kw)
@@ -776,8 +778,9 @@ def second_best(net, links, *, bounds=None, tol=None, method="auto", search="aut
         ok, msg = bool(res.success), _search_message(res.message)
     value, best_tolls, eq = state["best"]
     n_evals = len(trace_cost)
-    if n_evals >= max_evals and not ok:
-        msg = f"evaluation cap {max_evals} reached: {msg}"
+    if state["capped"]:
+        # past the cap every new point read as the best value so far: not a minimum
+        ok, msg = False, f"evaluation cap {max_evals} reached: {msg}"
     if state["stop"]:
         ok, msg = False, "stopped by callback"
     if not ok and not state["stop"]:

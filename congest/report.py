@@ -210,7 +210,8 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
                             "set by the roads (zone connectors are grey dashes, not to "
                             "scale)."))
         charts.append(Chart("flow-so", plotting.flow_map(net, so, **scales), "System optimum",
-                            "Routes that make total travel time least."))
+                            "Routes that make the total generalized cost least (travel time "
+                            "plus any fixed link charges and tolls, valued in minutes)."))
         charts.append(Chart("difference-ue-so",
                             plotting.difference_map(net, ue, so, labels=("UE", "SO")),
                             "What the system optimum moves",

@@ -265,7 +265,11 @@ def _stats(prefix, eq, system_cost):
     }
 
 
-def evaluate_point(net, point, *, method="auto", tol=1e-6, max_iter=None, scenarios=(),
+#: Default relative-gap target of a sweep's solves (many solves: looser than one solve's).
+SWEEP_TOL = 1e-6
+
+
+def evaluate_point(net, point, *, method="auto", tol=SWEEP_TOL, max_iter=None, scenarios=(),
                    scenario_options=None, warm=None):
     """Solve one sweep point.
 
@@ -294,6 +298,7 @@ def evaluate_point(net, point, *, method="auto", tol=1e-6, max_iter=None, scenar
 
     start = time.perf_counter()
     warm = warm or {}
+    tol = SWEEP_TOL if tol is None else tol
     kw = {"method": method, "tol": tol, "max_iter": max_iter}
     scaled = net.scale_demand(point.demand_scale)
     row = point.as_dict()
@@ -715,7 +720,7 @@ class _DaskSweep:
 
 
 def sweep(net, demand_scales, *, toll_scales=None, advice_shares=None, scenarios=(),
-          scenario_options=None, method="auto", tol=1e-6, max_iter=None, store=None,
+          scenario_options=None, method="auto", tol=SWEEP_TOL, max_iter=None, store=None,
           scheduler=None, n_workers=None, processes=True, chunk_size=2, retries=2,
           worker_timeout=60.0, numba_threads=None, callback=None) -> SweepResult:
     """Solve UE and SO over a range of demand levels (and toll scales, advice shares).
@@ -736,8 +741,8 @@ def sweep(net, demand_scales, *, toll_scales=None, advice_shares=None, scenarios
         Keyword arguments for ``compare``.
     method : str, default "auto"
         Equilibrium method (see :func:`congest.solve`).
-    tol : float, default 1e-6
-        Relative-gap target of every solve.
+    tol : float, default 1e-6 (:data:`SWEEP_TOL`)
+        Relative-gap target of every solve (None: the default).
     max_iter : int, optional
     store : path-like, optional
         Folder of finished points for resuming (see the module notes).
@@ -817,7 +822,8 @@ def sweep(net, demand_scales, *, toll_scales=None, advice_shares=None, scenarios
     if threads is None and scheduler is None:
         cores = os.cpu_count() or 1
         threads = max(1, cores // (n_workers or cores))
-    settings = _Settings(method=method, tol=float(tol), max_iter=max_iter,
+    settings = _Settings(method=method, tol=float(SWEEP_TOL if tol is None else tol),
+                         max_iter=max_iter,
                          scenarios=tuple(scenarios),
                          scenario_options=tuple(sorted((scenario_options or {}).items())),
                          numba_threads=threads)

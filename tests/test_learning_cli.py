@@ -112,4 +112,5 @@ def test_learn_chart_names_the_setting_and_draws_the_equilibrium(runner, tmp_pat
     res = runner.invoke(command, [str(NETWORKS / "braess"), "--out",
                                   str(tmp_path / "x.csv"), "--chart", str(tmp_path / "x.bmp")])
     assert res.exit_code == 1 and "unknown picture format" in res.output
+    assert "column" not in res.output and "--chart" in res.output  # an option, named so
     assert not (tmp_path / "x.csv").exists() and not (tmp_path / "x.bmp").exists()

@@ -259,7 +259,8 @@ def test_negative_class_cost_is_refused():
 def test_sioux_falls_classes_without_tolls_reproduce_published_flows():
     # with no money tolls every class sees the same costs, so the totals are the
     # single-class UE: the published best-known Sioux Falls flows (LeBlanc, Morlok &
-    # Pierskalla 1975 network; best-known solution from the shared README's source)
+    # Pierskalla 1975 network; best-known solution of the Transportation Networks for
+    # Research collection, H. Bar-Gera et al.)
     from conftest import load_reference, reference_ue_flows
 
     net = load_reference("siouxfalls")
@@ -277,3 +278,11 @@ def test_route_queries_refuse_multiclass_results_clearly():
     for query in (lambda: route_flows(eq), lambda: select_link(eq, [1])):
         with pytest.raises(SolverError, match="single-class result"):
             query()
+
+
+def test_multiclass_entry_points_accept_auto_and_refuse_single_class_starts():
+    net = _tolled_random(3)
+    auto = solve_multiclass(net, CLASSES, method="auto")
+    assert auto.method == "gp" and auto.relative_gap <= 1e-10
+    with pytest.raises(SolverError, match="earlier multi-class result"):
+        solve_multiclass(net, CLASSES, warm_start=solve(net))

@@ -7,7 +7,7 @@ import pytest
 from numpy.testing import assert_allclose
 
 from congest import METHODS, solve
-from congest.exceptions import NetworkError, SolverError
+from congest.exceptions import ConvergenceWarning, NetworkError, SolverError
 from congest.network import Network
 from congest.pricing import first_best, second_best, system_cost, toll_sensitivity
 
@@ -223,3 +223,15 @@ def test_search_stopping_messages_are_plain_words():
     assert "powell" in _search_message("ABNORMAL_TERMINATION_IN_LNSRCH")
     assert _search_message("Optimization terminated successfully.") == (
         "Optimization terminated successfully.")
+
+
+def test_evaluation_cap_counts_solves_and_is_reported():
+    # max_evals caps the equilibrium solves exactly; a search cut short says so and is
+    # not marked converged (its last points were not evaluated)
+    net = parallel([8.0, 1.0], [1.0, 2.0], 4.0)
+    with pytest.warns(ConvergenceWarning, match="evaluation cap 5 reached"):
+        sb = second_best(net, [2], tol=TOL, max_evals=5)
+    assert sb.evaluations == 5
+    assert not sb.converged and "evaluation cap 5 reached" in sb.message
+    full = second_best(net, [2], tol=TOL)
+    assert full.converged and full.evaluations > 5

@@ -190,8 +190,8 @@ def command(network, rule, rate, schedule, theta, days, information, advice_shar
         from ..plotting import FORMATS
 
         if Path(chart).suffix.lower() not in FORMATS:
-            raise InputError(f"unknown picture format {Path(chart).suffix!r}; use .png, .svg "
-                             "or .pdf", column="--chart", value=str(chart))
+            raise InputError(f"--chart {chart}: unknown picture format "
+                             f"{Path(chart).suffix!r}; use .png, .svg or .pdf")
     net, layout = load_network(network, **net_opts)
     check_paths(net, layout)
     pairs = [_pair(t) for t in track]
