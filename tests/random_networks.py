@@ -82,3 +82,16 @@ def random_network(rng, *, n_core=None, n_zones=None, through_centroids=False,
         zone_ids=np.arange(1, n_zones + 1), zone_nodes=zones, demand=demand,
         cost_kind=kind, through_centroids=through_centroids, name="random",
     )
+
+
+def grid_links(n_rows, n_cols):
+    """Tails and heads of a two-way street grid, nodes numbered row by row from 0."""
+    ids = np.arange(n_rows * n_cols).reshape(n_rows, n_cols)
+    tail, head = [], []
+    for r in range(n_rows):
+        for c in range(n_cols):
+            for rr, cc in ((r, c + 1), (r + 1, c)):
+                if rr < n_rows and cc < n_cols:
+                    tail += [ids[r, c], ids[rr, cc]]
+                    head += [ids[rr, cc], ids[r, c]]
+    return tail, head

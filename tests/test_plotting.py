@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from matplotlib.colors import LogNorm, Normalize
+from random_networks import grid_links
 
 import congest
 from congest.exceptions import NetworkError
@@ -49,13 +50,7 @@ def grid(n_rows=4, n_cols=5, *, spacing=1.0, crs="", one_way=True, seed=0, **ext
     xs, ys = np.meshgrid(np.arange(n_cols) * spacing, np.arange(n_rows) * spacing)
     x, y = xs.ravel(), ys.ravel()
     ids = np.arange(n_rows * n_cols).reshape(n_rows, n_cols)
-    tail, head = [], []
-    for r in range(n_rows):
-        for c in range(n_cols):
-            for rr, cc in ((r, c + 1), (r + 1, c)):
-                if rr < n_rows and cc < n_cols:
-                    tail += [ids[r, c], ids[rr, cc]]
-                    head += [ids[rr, cc], ids[r, c]]
+    tail, head = grid_links(n_rows, n_cols)
     if one_way:  # drop one direction of the first street
         tail, head = tail[1:], head[1:]
     m = len(tail)

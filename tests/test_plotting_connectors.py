@@ -18,6 +18,7 @@ matplotlib.use("Agg")
 import numpy as np
 import pytest
 from matplotlib.colors import to_rgba_array
+from random_networks import grid_links
 
 import congest
 from congest.generate import GENERATORS, generate_network, grid_network
@@ -71,13 +72,7 @@ def corner_grid():
     """A 3 x 4 two-way grid of congestible streets with zones on its corner nodes."""
     n_rows, n_cols = 3, 4
     ids = np.arange(n_rows * n_cols).reshape(n_rows, n_cols)
-    tail, head = [], []
-    for r in range(n_rows):
-        for c in range(n_cols):
-            for rr, cc in ((r, c + 1), (r + 1, c)):
-                if rr < n_rows and cc < n_cols:
-                    tail += [ids[r, c], ids[rr, cc]]
-                    head += [ids[rr, cc], ids[r, c]]
+    tail, head = grid_links(n_rows, n_cols)
     xs, ys = np.meshgrid(np.arange(n_cols, dtype=float), np.arange(n_rows, dtype=float))
     return Network(node_ids=np.arange(1, ids.size + 1), tail=tail, head=head,
                    capacity=300.0, free_flow_time=1.0, zone_ids=[1, 2],
