@@ -1019,7 +1019,8 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
     if n_od == 0:
         return {"flow": x, "iterations": 0, "converged": True,
                 "message": "no demand: every link flow is zero", "history": history,
-                "state": export(), "class_flow": np.zeros((n_cls, n_links))}
+                "state": export(),
+                **({"class_flow": np.zeros((n_cls, n_links))} if multi else {})}
 
     n_nodes = net.n_nodes
     pred = np.empty((rows.size, n_nodes), dtype=np.int32)
@@ -1195,5 +1196,6 @@ def solve_gp(problem, *, tol, max_iter, time_limit, warm_start, callback,
         "message": message,
         "history": history,
         "state": export(),
-        "class_flow": _class_flows(n_cls, n_links, od_cls, pool) if multi else x.copy()[None, :],
+        # per-class link flows, for a multi-class problem only
+        **({"class_flow": _class_flows(n_cls, n_links, od_cls, pool)} if multi else {}),
     }

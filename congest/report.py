@@ -191,6 +191,7 @@ def build_report(network, *, tol=None, method="auto", advice_share=0.5, toll_pla
 
 def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
     from . import plotting
+    from .plotting._charts import has_revenue
 
     fb = cmp.results["first_best"]
     ue, so = fb.ue, fb.so
@@ -264,7 +265,7 @@ def _charts(net, cmp, sweep_result, learning_result, notes, solver_error, tol):
                         "Each measure as a percentage of user equilibrium (measures that "
                         "would repeat another's bars are left out)"
                         + (f", and the toll revenue of each scenario in {net.currency}."
-                           if _any_revenue(table) else ".")))
+                           if has_revenue(table) else ".")))
     runs = {f"{r.method} ({r.objective.upper()})": r for r in (ue, so) if r.history}
     if runs:
         charts.append(Chart("convergence", plotting.convergence_chart(runs, tol=tol),
@@ -302,10 +303,6 @@ def _learning_caption(result):
         text += "one run; "
     return (text + "the dashed line is the user equilibrium; route shares of the busiest "
             "OD pair.")
-
-
-def _any_revenue(table):
-    return "revenue_money" in table and bool((table["revenue_money"].fillna(0.0) > 0).any())
 
 
 def _named(net, i):

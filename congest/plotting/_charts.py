@@ -482,9 +482,7 @@ def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
     if chosen:
         metrics, repeats = _drop_repeats(index, metrics)
         values, index = values[list(metrics)], index[list(metrics)]
-    revenue = (frame["revenue_money"].astype(float) if "revenue_money" in frame else None)
-    if revenue is not None and not (revenue.fillna(0.0) > 0).any():
-        revenue = None
+    revenue = frame["revenue_money"].astype(float) if has_revenue(frame) else None
     if revenue is None:
         fig, (ax,) = _new_figure(figsize)
     else:
@@ -539,6 +537,12 @@ def scenario_chart(table, *, metrics=None, baseline=None, scenario_column=None,
         fig.text(0.02, 0.012, "Not drawn: " + "; ".join(notes) + ".", fontsize=7.5,
                  color=_MUTED, ha="left", va="bottom", gid="congest-footnote")
     return fig
+
+
+def has_revenue(table):
+    """True when some scenario of ``table`` raises toll revenue (the chart's second panel)."""
+    return ("revenue_money" in table
+            and bool((table["revenue_money"].astype(float).fillna(0.0) > 0).any()))
 
 
 def _measure(label):

@@ -425,13 +425,13 @@ def _table_key_figures(net, volume, travel_time, vc, road):
 
 def _over_capacity(vc, road):
     """"12 of 394 road links over capacity" (plain "links" when there are no connectors)."""
-    what = "links" if road.all() else "road links"
-    return f"{int(np.sum(vc[road] > 1.0)):,} of {int(road.sum()):,} {what} over capacity"
+    return (f"{int(np.sum(vc[road] > 1.0)):,} of {int(road.sum()):,} {_road_links(road)} "
+            "over capacity")
 
 
-def _road_links(frame):
-    """"links", or "road links" when the map also draws connectors."""
-    return "links" if frame.road.all() else "road links"
+def _road_links(road):
+    """"links", or "road links" when some links are zone connectors (``road`` False)."""
+    return "links" if road.all() else "road links"
 
 
 def _period(net):
@@ -658,7 +658,7 @@ def difference_map(network, flow_a, flow_b, *, labels=("A", "B"), title=None,
             pct = 100.0 * dvh / vh_a if vh_a else 0.0
             change_txt = f"{dvh:+,.0f} ({pct:+.1f}%)".replace("-", "\u2212")
             parts.append(f"vehicle-hours {change_txt}")
-        parts.append(f"{n_up} {_road_links(frame)} gain volume, {n_down} lose")
+        parts.append(f"{n_up} {_road_links(road)} gain volume, {n_down} lose")
         key_figure = "  ·  ".join(parts)
     if title is None:
         title = f"{labels[1]} against {labels[0]}"
