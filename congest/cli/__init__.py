@@ -84,4 +84,4 @@ def main():
     if (ctx.invoked_subcommand in SOLVING and not asking_help and _stderr_is_terminal()
             and not kernels_cached()):
         click.echo("congest: first run on this machine: compiling the numerical kernels "
-                   "(once, about 20 s; later runs load them)", err=True)
+                   "(once, about half a minute; later runs load them)", err=True)
